@@ -1,0 +1,457 @@
+package optim
+
+import (
+	"context"
+	"errors"
+	"fmt"
+	"math"
+	"math/rand/v2"
+	"time"
+
+	"github.com/rhomb/rhomb/data"
+	"github.com/rhomb/rhomb/loss"
+	"github.com/rhomb/rhomb/net"
+)
+
+// Model is what the trainer trains: a *net.Network, or a wrapper around one
+// such as *normalize.Net, whose trainable parameters may differ from the
+// network's weights.
+type Model[T net.Float] interface {
+	Forward(x []T, rows int) []T
+	Backward(dOut []T)
+	Params() []*net.Param[T]
+	// Base is the network that computes; its dense layers' W and gradients
+	// are what the hooks observe.
+	Base() *net.Network[T]
+}
+
+// Constrained is implemented by models with constraints to restore after
+// every update (normalize.Net returns its directions to the sphere).
+type Constrained interface{ Constrain() }
+
+// directionNormer is implemented by models that hold directions of their
+// own, whose norms the hooks report.
+type directionNormer interface {
+	DirectionNorms(dst []float64) []float64
+}
+
+// Status says why a run ended.
+type Status int
+
+const (
+	Finished  Status = iota // Settings.Epochs epochs were run
+	Converged               // the epoch loss reached Settings.TargetLoss
+	Stopped                 // a hook returned ErrStop
+	Canceled                // the context was canceled
+	Failed                  // an error ended the run
+)
+
+func (s Status) String() string {
+	switch s {
+	case Finished:
+		return "finished"
+	case Converged:
+		return "converged"
+	case Stopped:
+		return "stopped"
+	case Canceled:
+		return "canceled"
+	case Failed:
+		return "failed"
+	}
+	return fmt.Sprintf("Status(%d)", int(s))
+}
+
+// Result summarizes a run.
+type Result struct {
+	Status Status
+	Epochs int     // epochs completed
+	Steps  int     // steps taken
+	Loss   float64 // mean data loss of the last completed epoch; NaN if none
+}
+
+// NonFiniteError reports a loss, gradient or updated weight that is NaN or
+// infinite. The model keeps the weights from before the failing step.
+type NonFiniteError struct {
+	Step  int    // the failing step, counting from 1
+	Epoch int    // from 0
+	What  string // "loss", or "gradient of <param>" or "update of <param>"
+	Index int    // position in the parameter; -1 for the loss
+	Value float64
+}
+
+func (e *NonFiniteError) Error() string {
+	where := ""
+	if e.Index >= 0 {
+		where = fmt.Sprintf(" at index %d", e.Index)
+	}
+	return fmt.Sprintf("optim: step %d (epoch %d): %s is %v%s; the weights are those before the step. Lower the learning rate or the temperature, or standardize the inputs",
+		e.Step, e.Epoch, e.What, e.Value, where)
+}
+
+// Trainer runs minibatch SGD on one model and dataset. It holds the state
+// of the run — step and epoch counters, batch order, momentum, random
+// streams — so that Run can be called again to continue.
+type Trainer[T net.Float] struct {
+	model  Model[T]
+	loss   loss.Func[T]
+	set    *data.Set[T]
+	s      Settings
+	params []*net.Param[T]
+
+	batch         int // rows per step
+	stepsPerEpoch int
+	order         []int // Shuffled: the current epoch's permutation
+	inEpoch       int   // steps taken in the current epoch
+	epochLoss     float64
+	epochRows     int
+
+	step, epoch int
+	lastLoss    float64
+
+	batchSrc, noiseSrc *rand.PCG
+	batchRNG, noiseRNG *rand.Rand
+
+	vel, saved, savedVel [][]T
+	bx, by, gout, fnorm  []T
+
+	info     StepInfo
+	full     Margins
+	einfo    EpochInfo
+	dirNorms []float64
+	started  time.Time
+}
+
+// NewTrainer checks the settings against the model and data and allocates
+// every buffer the run needs.
+func NewTrainer[T net.Float](m Model[T], l loss.Func[T], set *data.Set[T], s Settings) (*Trainer[T], error) {
+	s = s.withDefaults()
+	if err := s.validate(); err != nil {
+		return nil, err
+	}
+	if err := set.Validate(); err != nil {
+		return nil, err
+	}
+	base := m.Base()
+	if set.Features != base.In() {
+		return nil, fmt.Errorf("optim: the data has %d features but the network takes %d", set.Features, base.In())
+	}
+	if set.Outputs != base.Out() {
+		return nil, fmt.Errorf("optim: the data has %d target columns but the network has %d outputs", set.Outputs, base.Out())
+	}
+	t := &Trainer[T]{model: m, loss: l, set: set, s: s, params: m.Params(), lastLoss: math.NaN()}
+	t.batch = s.BatchSize
+	if t.batch == 0 || t.batch > set.Rows {
+		t.batch = set.Rows
+	}
+	t.stepsPerEpoch = (set.Rows + t.batch - 1) / t.batch
+	t.order = make([]int, set.Rows)
+	for i := range t.order {
+		t.order[i] = i
+	}
+	// Two streams from one seed, so that noise does not shift batch order.
+	t.batchSrc = rand.NewPCG(s.Seed, 0x62617463) // "batc"
+	t.noiseSrc = rand.NewPCG(s.Seed, 0x6e6f6973) // "nois"
+	t.batchRNG, t.noiseRNG = rand.New(t.batchSrc), rand.New(t.noiseSrc)
+	for _, p := range t.params {
+		if s.Momentum > 0 {
+			t.vel = append(t.vel, make([]T, len(p.Value)))
+			t.savedVel = append(t.savedVel, make([]T, len(p.Value)))
+		}
+		t.saved = append(t.saved, make([]T, len(p.Value)))
+	}
+	if t.batch < set.Rows || s.Sampling == Independent {
+		t.bx = make([]T, t.batch*set.Features)
+		t.by = make([]T, t.batch*set.Outputs)
+	}
+	t.gout = make([]T, t.batch*set.Outputs)
+	t.fnorm = make([]T, t.batch*set.Outputs)
+	L := len(base.Dense())
+	t.info.LayerRho = make([]float64, L)
+	t.info.DirNorm = make([]float64, L)
+	t.info.DirSpeed = make([]float64, L)
+	t.info.Nu = make([]float64, L)
+	t.dirNorms = make([]float64, 0, L)
+	return t, nil
+}
+
+// Run trains until Settings.Epochs epochs are complete (counting epochs of
+// earlier calls), the target loss is reached, a hook stops it, or ctx is
+// canceled. Cancellation takes effect at the next step boundary: the
+// weights are those after the last whole step, and Run returns ctx.Err().
+func (t *Trainer[T]) Run(ctx context.Context) (Result, error) {
+	t.started = time.Now()
+	for t.epoch < t.s.Epochs {
+		for t.inEpoch < t.stepsPerEpoch {
+			if err := ctx.Err(); err != nil {
+				return t.result(Canceled), err
+			}
+			if err := t.takeStep(); err != nil {
+				if errors.Is(err, ErrStop) {
+					return t.result(Stopped), nil
+				}
+				return t.result(Failed), err
+			}
+		}
+		status, err := t.endEpoch()
+		if err != nil {
+			if errors.Is(err, ErrStop) {
+				return t.result(Stopped), nil
+			}
+			return t.result(Failed), err
+		}
+		if status == Converged {
+			return t.result(Converged), nil
+		}
+	}
+	return t.result(Finished), nil
+}
+
+func (t *Trainer[T]) result(s Status) Result {
+	return Result{Status: s, Epochs: t.epoch, Steps: t.step, Loss: t.lastLoss}
+}
+
+func (t *Trainer[T]) endEpoch() (Status, error) {
+	t.lastLoss = t.epochLoss / float64(t.epochRows)
+	t.epoch++
+	t.inEpoch, t.epochLoss, t.epochRows = 0, 0, 0
+	if h := t.s.Hooks; h != nil && h.Epoch != nil {
+		t.einfo = EpochInfo{Epoch: t.epoch - 1, Steps: t.step, Loss: t.lastLoss, Rho: t.model.Base().Rho(), Elapsed: time.Since(t.started)}
+		if h.EpochMargins {
+			t.fullMargins()
+			t.einfo.Full = &t.full
+		}
+		if err := h.Epoch(&t.einfo); err != nil {
+			return Failed, err
+		}
+	}
+	if t.s.TargetLoss > 0 && t.lastLoss <= t.s.TargetLoss {
+		return Converged, nil
+	}
+	return Finished, nil
+}
+
+// nextBatch returns the rows of the next step.
+func (t *Trainer[T]) nextBatch() (x, y []T, rows int) {
+	set := t.set
+	if t.batch == set.Rows && t.s.Sampling == Shuffled {
+		return set.X, set.Y, set.Rows
+	}
+	rows = t.batch
+	if t.s.Sampling == Shuffled {
+		if t.inEpoch == 0 {
+			for i := len(t.order) - 1; i > 0; i-- { // Fisher–Yates
+				j := t.batchRNG.IntN(i + 1)
+				t.order[i], t.order[j] = t.order[j], t.order[i]
+			}
+		}
+		start := t.inEpoch * t.batch
+		rows = min(t.batch, set.Rows-start)
+		for r, i := range t.order[start : start+rows] {
+			t.gather(r, i)
+		}
+	} else {
+		for r := range rows {
+			t.gather(r, t.batchRNG.IntN(set.Rows))
+		}
+	}
+	return t.bx, t.by, rows
+}
+
+func (t *Trainer[T]) gather(r, i int) {
+	f, o := t.set.Features, t.set.Outputs
+	copy(t.bx[r*f:(r+1)*f], t.set.X[i*f:(i+1)*f])
+	copy(t.by[r*o:(r+1)*o], t.set.Y[i*o:(i+1)*o])
+}
+
+// takeStep takes one SGD step, leaving the end of an epoch to Run. After
+// the first step it allocates nothing.
+func (t *Trainer[T]) takeStep() error {
+	lr := t.s.LearningRate * t.s.Schedule.Factor(Progress{
+		Step: t.step, Epoch: t.epoch, StepsPerEpoch: t.stepsPerEpoch, Steps: t.stepsPerEpoch * t.s.Epochs,
+	})
+	x, y, rows := t.nextBatch()
+	cols := t.set.Outputs
+	out := t.model.Forward(x, rows)
+	l := t.loss.Eval(out, y, rows, cols, t.gout[:rows*cols])
+	if math.IsNaN(l) || math.IsInf(l, 0) {
+		return &NonFiniteError{Step: t.step + 1, Epoch: t.epoch, What: "loss", Index: -1, Value: l}
+	}
+	t.model.Backward(t.gout[:rows*cols])
+	h := t.s.Hooks
+	if h != nil && h.Step != nil {
+		t.observe(out, y, rows, l, lr)
+	}
+	if err := t.update(lr); err != nil {
+		return err
+	}
+	if c, ok := t.model.(Constrained); ok {
+		c.Constrain()
+	}
+	t.step++
+	t.inEpoch++
+	t.epochLoss += l * float64(rows)
+	t.epochRows += rows
+	if h != nil && h.Step != nil {
+		t.info.Step = t.step
+		t.info.Full = nil
+		if h.FullMarginsEvery > 0 && t.step%h.FullMarginsEvery == 0 {
+			t.fullMargins()
+			t.info.Full = &t.full
+		}
+		if err := h.Step(&t.info); err != nil {
+			return err
+		}
+	}
+	return nil
+}
+
+// update applies one step to every parameter: decay, momentum, the step
+// and the noise, in one pass per parameter. If any gradient or new value is
+// not finite it restores the weights and momentum from before the step.
+func (t *Trainer[T]) update(lr float64) error {
+	for _, p := range t.params {
+		for j, g := range p.Grad {
+			if f := float64(g); math.IsNaN(f) || math.IsInf(f, 0) {
+				return &NonFiniteError{Step: t.step + 1, Epoch: t.epoch, What: "gradient of " + p.Name, Index: j, Value: f}
+			}
+		}
+	}
+	for i, p := range t.params {
+		copy(t.saved[i], p.Value)
+		if t.vel != nil {
+			copy(t.savedVel[i], t.vel[i])
+		}
+	}
+	decay2 := 2 * t.s.WeightDecay
+	mu := t.s.Momentum
+	sigma := math.Sqrt(2 * lr * t.s.Temperature)
+	var bad *NonFiniteError
+	for i, p := range t.params {
+		d := 0.0
+		if p.Decay {
+			d = decay2
+		}
+		var v []T
+		if t.vel != nil {
+			v = t.vel[i]
+		}
+		for j, gj := range p.Grad {
+			theta := float64(p.Value[j])
+			g := float64(gj) + d*theta
+			if v != nil {
+				vj := mu*float64(v[j]) + g
+				v[j] = T(vj)
+				if t.s.Nesterov {
+					g += mu * vj
+				} else {
+					g = vj
+				}
+			}
+			theta -= lr * g
+			if sigma > 0 {
+				theta += sigma * t.noiseRNG.NormFloat64()
+			}
+			nv := T(theta)
+			if f := float64(nv); bad == nil && (math.IsNaN(f) || math.IsInf(f, 0)) {
+				bad = &NonFiniteError{Step: t.step + 1, Epoch: t.epoch, What: "update of " + p.Name, Index: j, Value: f}
+			}
+			p.Value[j] = nv
+		}
+	}
+	if bad != nil {
+		for i, p := range t.params {
+			copy(p.Value, t.saved[i])
+			if t.vel != nil {
+				copy(t.vel[i], t.savedVel[i])
+			}
+		}
+		return bad
+	}
+	return nil
+}
+
+// observe fills t.info from the state before the update.
+func (t *Trainer[T]) observe(out, y []T, rows int, dataLoss, lr float64) {
+	info := &t.info
+	info.Epoch, info.LearningRate, info.Temperature = t.epoch, lr, t.s.Temperature
+	lambda := t.s.WeightDecay
+	rho, gw := 1.0, 0.0
+	for k, d := range t.model.Base().Dense() {
+		w, g := d.W.Value, d.W.Grad
+		var ww float64
+		gw = 0
+		for j := range w {
+			ww += float64(w[j]) * float64(w[j])
+			gw += float64(g[j]) * float64(w[j])
+		}
+		// ‖G − ⟨G, V⟩V‖ with ⟨G, V⟩V = (⟨G, W⟩/‖W‖²)·W, summed directly
+		// rather than as ‖G‖² − ⟨G, V⟩², which cancels when G ∥ V.
+		c := gw / ww
+		pt := 0.0
+		for j := range w {
+			e := float64(g[j]) - c*float64(w[j])
+			pt += e * e
+		}
+		rk := math.Sqrt(ww)
+		rho *= rk
+		info.LayerRho[k] = rk
+		info.Nu[k] = -gw / 2
+		info.DirSpeed[k] = rk * math.Sqrt(pt)
+	}
+	info.Rho = rho
+	if dn, ok := t.model.(directionNormer); ok {
+		t.dirNorms = dn.DirectionNorms(t.dirNorms[:0])
+		copy(info.DirNorm, t.dirNorms)
+	} else {
+		for k := range info.DirNorm {
+			info.DirNorm[k] = 1
+		}
+	}
+	// ⟨G_k, W_k⟩ is the same for every k (Euler); the readout's is used.
+	info.RhoDot = -gw/rho - 2*lambda*rho
+
+	cols := t.set.Outputs
+	info.Margins = Margins{}
+	summarize(&info.Margins, out, y, rows, cols, rho)
+	info.RhoStar = math.NaN()
+	if eq, ok := t.loss.(loss.Equilibrium[T]); ok {
+		f := t.fnorm[:rows*cols]
+		for i, v := range out[:rows*cols] {
+			f[i] = T(float64(v) / rho)
+		}
+		info.RhoStar = eq.RhoStar(f, y, rows, cols, lambda)
+	}
+
+	decay := 0.0
+	for _, p := range t.params {
+		if p.Decay {
+			for _, v := range p.Value {
+				decay += float64(v) * float64(v)
+			}
+		}
+	}
+	mult := 0.0
+	for k, nu := range info.Nu {
+		mult += nu * (info.DirNorm[k]*info.DirNorm[k] - 1)
+	}
+	info.Loss = LossParts{Data: dataLoss, Decay: lambda * decay, Multiplier: mult}
+	info.Loss.Total = info.Loss.Data + info.Loss.Decay + info.Loss.Multiplier
+}
+
+// fullMargins computes the margins of the whole training set into t.full,
+// in chunks of the batch size.
+func (t *Trainer[T]) fullMargins() {
+	set := t.set
+	t.full = Margins{}
+	rho := t.model.Base().Rho()
+	for start := 0; start < set.Rows; start += t.batch {
+		rows := min(t.batch, set.Rows-start)
+		x := set.X[start*set.Features : (start+rows)*set.Features]
+		out := t.model.Forward(x, rows)
+		summarize(&t.full, out, set.Y[start*set.Outputs:(start+rows)*set.Outputs], rows, set.Outputs, rho)
+	}
+}
+
+// Steps returns the steps taken and the epochs completed so far.
+func (t *Trainer[T]) Steps() (steps, epochs int) { return t.step, t.epoch }
