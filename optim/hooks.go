@@ -55,7 +55,9 @@ type Margins struct {
 //
 // The per-layer slices have one entry per dense layer, in order (the
 // readout last), whether or not the model normalizes that layer: for layer
-// k, ρ_k = ‖W_k‖_F and V_k = W_k/ρ_k, and G_k = ∂L_data/∂W_k.
+// k, ρ_k = ‖W_k‖_F and V_k = W_k/ρ_k, and G_k = ∂L_data/∂W_k. A layer whose
+// weights are all zero has no direction: while one does, ρ = 0 and RhoDot,
+// RhoStar and the margins are NaN.
 type StepInfo struct {
 	Step         int // steps taken, counting this one
 	Epoch        int // from 0

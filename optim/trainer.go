@@ -387,7 +387,10 @@ func (t *Trainer[T]) observe(out, y []T, rows int, dataLoss, lr float64) {
 		}
 		// ‖G − ⟨G, V⟩V‖ with ⟨G, V⟩V = (⟨G, W⟩/‖W‖²)·W, summed directly
 		// rather than as ‖G‖² − ⟨G, V⟩², which cancels when G ∥ V.
-		c := gw / ww
+		c := 0.0
+		if ww > 0 {
+			c = gw / ww
+		}
 		pt := 0.0
 		for j := range w {
 			e := float64(g[j]) - c*float64(w[j])
