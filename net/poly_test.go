@@ -310,14 +310,7 @@ func TestPolyReLUFloat32(t *testing.T) {
 	// An interval whose midpoint, 0.3, is not a float32 number, so that
 	// mapping x to t in float32 would show.
 	for _, fit := range fits {
-		n32, n64 := net.NewPolyReLU[float32]("p", 8, -1.7, 2.3, fit), net.NewPolyReLU[float64]("p", 8, -1.7, 2.3, fit)
-		y32, y64 := forward1(t, n32, x32), forward1(t, n64, x64)
-		d32, d64 := backward1(n32, x32, dy32), backward1(n64, x64, dy64)
-		for i := range x32 {
-			if !within32(y32[i], y64[i]) || !within32(d32[i], d64[i]) {
-				t.Fatalf("%v, x = %g: float32 gives p = %v, dx = %v; float64 %v, %v", fit, x64[i], y32[i], d32[i], y64[i], d64[i])
-			}
-		}
+		agree32(t, fmt.Sprint(fit), net.NewPolyReLU[float32]("p", 8, -1.7, 2.3, fit), net.NewPolyReLU[float64]("p", 8, -1.7, 2.3, fit), x32, x64, dy32, dy64)
 	}
 }
 

@@ -179,13 +179,19 @@ func TestSmoothReLUFloat32(t *testing.T) {
 		dy64[i] = float64(dy32[i])
 	}
 	for _, beta := range []float64{0.5, 4} {
-		n32, n64 := net.NewSmoothReLU[float32]("s", beta), net.NewSmoothReLU[float64]("s", beta)
-		y32, y64 := forward1(t, n32, x32), forward1(t, n64, x64)
-		d32, d64 := backward1(n32, x32, dy32), backward1(n64, x64, dy64)
-		for i := range x32 {
-			if !within32(y32[i], y64[i]) || !within32(d32[i], d64[i]) {
-				t.Fatalf("β = %g, x = %g: float32 gives y = %v, dx = %v; float64 %v, %v", beta, x64[i], y32[i], d32[i], y64[i], d64[i])
-			}
+		agree32(t, fmt.Sprintf("β = %g", beta), net.NewSmoothReLU[float32]("s", beta), net.NewSmoothReLU[float64]("s", beta), x32, x64, dy32, dy64)
+	}
+}
+
+// agree32 checks that a node's float32 instantiation gives its float64
+// values and input gradients within one rounding to float32 (within32).
+func agree32(t *testing.T, what string, n32 net.Node[float32], n64 net.Node[float64], x32 []float32, x64 []float64, dy32 []float32, dy64 []float64) {
+	t.Helper()
+	y32, y64 := forward1(t, n32, x32), forward1(t, n64, x64)
+	d32, d64 := backward1(n32, x32, dy32), backward1(n64, x64, dy64)
+	for i := range x32 {
+		if !within32(y32[i], y64[i]) || !within32(d32[i], d64[i]) {
+			t.Fatalf("%s, x = %g: float32 gives y = %v, dx = %v; float64 %v, %v", what, x64[i], y32[i], d32[i], y64[i], d64[i])
 		}
 	}
 }

@@ -84,7 +84,7 @@ type stepRecord struct {
 	LayerRho     []num         `json:"layer_rho"`
 	DirNorm      []num         `json:"direction_norm"`
 	DirSpeed     []num         `json:"direction_speed"`
-	Nu           []num         `json:"multiplier"`
+	Nu           []num         `json:"nu"`
 	RhoDot       num           `json:"rho_rate"`
 	RhoStar      num           `json:"rho_equilibrium"`
 	Margins      *marginRecord `json:"batch_margins"`
