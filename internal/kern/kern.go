@@ -33,9 +33,11 @@ type Float interface{ float32 | float64 }
 const (
 	tileRows = 64
 	tileCols = 192
-	// parallelFlops is the size of product below which handing tiles to other
-	// goroutines costs more than it saves (measured in bench/: below about
-	// 2^18 multiply-adds the wake-up latency dominates).
+	// parallelFlops is the size of product below which tiles stay on the
+	// caller's goroutine. 2^18 multiply-adds take tens of microseconds, well
+	// above a goroutine wake-up (about a microsecond); the value is a
+	// judgement, not yet a measurement, and the faster kernels should
+	// measure it.
 	parallelFlops = 1 << 18
 )
 
@@ -44,6 +46,7 @@ const (
 // is m×n. lda, ldb and ldc are the row strides. It panics, as gonum does, on
 // inconsistent sizes.
 func Gemm[T Float](tA, tB bool, m, n, k int, alpha T, a []T, lda int, b []T, ldb int, beta T, c []T, ldc int) {
+	checkArgs(tA, tB, m, n, k, a, lda, b, ldb, c, ldc)
 	if m == 0 || n == 0 {
 		return
 	}
@@ -172,5 +175,41 @@ func serial[T Float](tA, tB bool, m, n, k int, alpha T, a []T, lda int, b []T, l
 		impl.Dgemm(trans(tA), trans(tB), m, n, k, any(alpha).(float64), any(a).([]float64), lda, any(b).([]float64), ldb, any(beta).(float64), any(c).([]float64), ldc)
 	case float32:
 		impl.Sgemm(trans(tA), trans(tB), m, n, k, any(alpha).(float32), any(a).([]float32), lda, any(b).([]float32), ldb, any(beta).(float32), any(c).([]float32), ldc)
+	}
+}
+
+// checkArgs panics on arguments gonum would reject for the whole product,
+// before any tile reaches a worker: a panic there could not be recovered
+// by the caller. The length formulas are gonum's (blas/gonum/dgemm.go).
+func checkArgs[T Float](tA, tB bool, m, n, k int, a []T, lda int, b []T, ldb int, c []T, ldc int) {
+	rowsA, colsA := m, k
+	if tA {
+		rowsA, colsA = k, m
+	}
+	rowsB, colsB := k, n
+	if tB {
+		rowsB, colsB = n, k
+	}
+	switch {
+	case m < 0 || n < 0 || k < 0:
+		panic("kern: negative dimension")
+	case lda < max(1, colsA):
+		panic("kern: bad lda")
+	case ldb < max(1, colsB):
+		panic("kern: bad ldb")
+	case ldc < max(1, n):
+		panic("kern: bad ldc")
+	}
+	if m == 0 || n == 0 {
+		return
+	}
+	if len(a) < (rowsA-1)*lda+colsA {
+		panic("kern: A is too short")
+	}
+	if len(b) < (rowsB-1)*ldb+colsB {
+		panic("kern: B is too short")
+	}
+	if len(c) < (m-1)*ldc+n {
+		panic("kern: C is too short")
 	}
 }

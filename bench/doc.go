@@ -1,0 +1,36 @@
+// Package bench measures one SGD training step of a bias-free ReLU network
+// with the square loss, built from rhomb's public API, side by side with
+// the same step written the way a Go programmer would write it with
+// gonum's mat.Dense.
+//
+// The package holds no code of its own: everything is in its tests. Run
+//
+//	go test -run '^$' -bench . -benchtime 20x ./bench/
+//
+// The benchmarks are named by their parameters:
+//
+//	BenchmarkStep/net=784-512-512-10/batch=128/float=32       rhomb, one step by hand
+//	BenchmarkStepGonum/net=784-512-512-10/batch=128/float=64  the gonum mat.Dense baseline
+//	BenchmarkTrainer/net=784-512-512-10/batch=128/float=32    optim.Trainer, one epoch of 8 steps
+//
+// for the networks 784-512-512-10 at batch 128 (Fashion-MNIST-shaped
+// inputs: 784 values in [0, 1), 10 classes) and 16-32-32-4 at batch 32,
+// in float32 and float64 (the gonum baseline in float64 only: mat.Dense
+// has no float32 counterpart). Each reports samples/s and allocations per
+// operation; a rhomb step allocates nothing after warm-up, a gonum step
+// does (its large products start goroutines).
+//
+// Twenty operations keep the large network's run short; the small
+// network's steps take tens of microseconds, and its figures settle only
+// with the default -benchtime of one second (or -count 5 and benchstat).
+//
+// Read the figures as ratios between benchmarks measured in the same run
+// on the same machine, never as absolute speeds: absolute figures depend
+// on the processor, GOMAXPROCS, the Go release and whatever else the
+// machine is doing. Both implementations do the same work (forward pass,
+// square-loss gradient, backward pass without the input gradient, plain
+// SGD update); TestSameGradients checks that they compute the same
+// gradients, within a rounding-error bound, so the comparison is fair.
+//
+// Without -bench, go test ./bench/ runs only that check and is quick.
+package bench
