@@ -343,6 +343,9 @@ func cfSample(t *testing.T, nw *net.Network[float64], l loss.Func[float64], set 
 // The loss is realized with the square loss on one row x = √(k/2) with
 // target 0 and one weight: (x·w − 0)² = k w²/2, gradient k·w.
 func TestLangevinQuadratic(t *testing.T) {
+	if testing.Short() {
+		t.Skip("long Markov chain; runs without -short")
+	}
 	// ηk = 0.1; x = √(k/2) = 0.5 is exact, so x² = k/2 holds exactly and
 	// the gradient's factor x² is not hidden behind x = 1.
 	const k, eta, temp = 0.5, 0.2, 0.7
@@ -453,6 +456,9 @@ func (c cfWell) Eval(out, _ []float64, rows, cols int, grad []float64) float64 {
 // range. The allowances are also checked to add up to a small share of
 // the probability, so that the Gibbs law is what is tested.
 func TestDoubleWellGibbs(t *testing.T) {
+	if testing.Short() {
+		t.Skip("long Markov chain; runs without -short")
+	}
 	const h, temp, eta = 1.0, 0.5, 0.002
 	U := func(w float64) float64 { u := w*w - 1; return h * u * u }
 	dU := func(w float64) float64 { return 4 * h * w * (w*w - 1) }
