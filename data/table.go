@@ -1,0 +1,130 @@
+package data
+
+import (
+	"errors"
+	"fmt"
+)
+
+// Kind is the type of a feature column.
+type Kind int
+
+const (
+	// Auto lets the reader decide: a column is Numeric if its first
+	// non-missing value parses as a number, Categorical otherwise.
+	Auto Kind = iota
+	Numeric
+	Categorical
+)
+
+func (k Kind) String() string {
+	switch k {
+	case Auto:
+		return "auto"
+	case Numeric:
+		return "numeric"
+	case Categorical:
+		return "categorical"
+	}
+	return fmt.Sprintf("Kind(%d)", int(k))
+}
+
+// Column is one feature column of a Table. Exactly one of Num and Cat is
+// used, by Kind. Missing[r] reports that row r held a missing-value marker;
+// Num[r] is then NaN and Cat[r] "".
+type Column struct {
+	Name    string
+	Kind    Kind // Numeric or Categorical, never Auto
+	Num     []float64
+	Cat     []string
+	Missing []bool
+}
+
+// Table is a labelled table as read from a file, before preprocessing:
+// feature columns in file order (the label column taken out), the label of
+// every row, and the line each row came from, for error messages.
+type Table struct {
+	Source  string // file name, for errors
+	Columns []Column
+	Label   string   // the label column's name
+	Labels  []string // one per row
+	Lines   []int    // Lines[r] is the 1-based line of row r in Source
+	Rows    int
+	// Dropped counts the rows left out for holding missing values, when
+	// the reader was asked to drop them.
+	Dropped int
+}
+
+// Column returns the feature column with the given name, or nil.
+func (t *Table) Column(name string) *Column {
+	for i := range t.Columns {
+		if t.Columns[i].Name == name {
+			return &t.Columns[i]
+		}
+	}
+	return nil
+}
+
+// Classes returns the distinct labels in sorted order.
+func (t *Table) Classes() []string {
+	seen := map[string]bool{}
+	var out []string
+	for _, l := range t.Labels {
+		if !seen[l] {
+			seen[l] = true
+			out = append(out, l)
+		}
+	}
+	sortStrings(out)
+	return out
+}
+
+func sortStrings(s []string) {
+	for i := 1; i < len(s); i++ {
+		for j := i; j > 0 && s[j] < s[j-1]; j-- {
+			s[j], s[j-1] = s[j-1], s[j]
+		}
+	}
+}
+
+// ParseError reports a problem in an input file, with where it is. Line
+// and Column are 1-based; Column is 0 when the problem is the whole line
+// or file. Err is one of the sentinel errors below, possibly wrapped.
+type ParseError struct {
+	File   string
+	Line   int
+	Column int
+	Field  string // the column's header name, when known
+	Err    error
+}
+
+func (e *ParseError) Error() string {
+	where := e.File
+	if where == "" {
+		where = "input"
+	}
+	if e.Line > 0 {
+		where += fmt.Sprintf(":%d", e.Line)
+	}
+	if e.Column > 0 {
+		where += fmt.Sprintf(":%d", e.Column)
+	}
+	if e.Field != "" {
+		where += fmt.Sprintf(" (column %q)", e.Field)
+	}
+	return where + ": " + e.Err.Error()
+}
+
+func (e *ParseError) Unwrap() error { return e.Err }
+
+// Sentinel causes carried by ParseError.
+var (
+	ErrEmpty           = errors.New("no data: the file is empty or has only a header")
+	ErrDuplicateHeader = errors.New("duplicate column name in the header")
+	ErrNoLabel         = errors.New("no column of that name in the header")
+	ErrRagged          = errors.New("wrong number of fields")
+	ErrMissing         = errors.New("missing value")
+	ErrNotNumber       = errors.New("not a number in a numeric column")
+	ErrInfinite        = errors.New("infinite value")
+	ErrOneClass        = errors.New("the label column has only one class")
+	ErrUnknownCategory = errors.New("category not seen in training")
+)
