@@ -1,43 +1,23 @@
 package data
 
 import (
-	"errors"
 	"fmt"
+
+	"github.com/rhomb/rhomb/data/prep"
 )
 
-// Kind is the type of a feature column.
-type Kind int
+// Kind is the type of a feature column; see prep.Kind.
+type Kind = prep.Kind
 
+// The column kinds.
 const (
-	// Auto lets the reader decide: a column is Numeric if its first
-	// non-missing value parses as a number, Categorical otherwise.
-	Auto Kind = iota
-	Numeric
-	Categorical
+	Auto        = prep.Auto
+	Numeric     = prep.Numeric
+	Categorical = prep.Categorical
 )
 
-func (k Kind) String() string {
-	switch k {
-	case Auto:
-		return "auto"
-	case Numeric:
-		return "numeric"
-	case Categorical:
-		return "categorical"
-	}
-	return fmt.Sprintf("Kind(%d)", int(k))
-}
-
-// Column is one feature column of a Table. Exactly one of Num and Cat is
-// used, by Kind. Missing[r] reports that row r held a missing-value marker;
-// Num[r] is then NaN and Cat[r] "".
-type Column struct {
-	Name    string
-	Kind    Kind // Numeric or Categorical, never Auto
-	Num     []float64
-	Cat     []string
-	Missing []bool
-}
+// Column is one feature column of a Table; see prep.Column.
+type Column = prep.Column
 
 // Table is a labelled table as read from a file, before preprocessing:
 // feature columns in file order (the label column taken out), the label of
@@ -116,15 +96,15 @@ func (e *ParseError) Error() string {
 
 func (e *ParseError) Unwrap() error { return e.Err }
 
-// Sentinel causes carried by ParseError.
+// Sentinel causes carried by ParseError (the same values as prep's).
 var (
-	ErrEmpty           = errors.New("no data: the file is empty or has only a header")
-	ErrDuplicateHeader = errors.New("duplicate column name in the header")
-	ErrNoLabel         = errors.New("no column of that name in the header")
-	ErrRagged          = errors.New("wrong number of fields")
-	ErrMissing         = errors.New("missing value")
-	ErrNotNumber       = errors.New("not a number in a numeric column")
-	ErrInfinite        = errors.New("infinite value")
-	ErrOneClass        = errors.New("the label column has only one class")
-	ErrUnknownCategory = errors.New("category not seen in training")
+	ErrEmpty           = prep.ErrEmpty
+	ErrDuplicateHeader = prep.ErrDuplicateHeader
+	ErrNoLabel         = prep.ErrNoLabel
+	ErrRagged          = prep.ErrRagged
+	ErrMissing         = prep.ErrMissing
+	ErrNotNumber       = prep.ErrNotNumber
+	ErrInfinite        = prep.ErrInfinite
+	ErrOneClass        = prep.ErrOneClass
+	ErrUnknownCategory = prep.ErrUnknownCategory
 )
