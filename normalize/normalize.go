@@ -284,6 +284,15 @@ func (w *Net[T]) DirectionNorms(dst []float64) []float64 {
 	return dst
 }
 
+// Sync writes W = ρ·V into the wrapped network now. Forward does this by
+// itself; call Sync after changing the parameters' values when the wrapped
+// network's W must be current without a forward pass (before saving it,
+// say).
+func (w *Net[T]) Sync() { w.sync() }
+
+// Options returns the options the wrapper was made with.
+func (w *Net[T]) Options() Options { return w.opts }
+
 // sync writes W = ρ·V into every normalized layer of the base network.
 func (w *Net[T]) sync() {
 	for i, l := range w.layers {

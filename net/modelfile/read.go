@@ -1,0 +1,283 @@
+package modelfile
+
+import (
+	"bytes"
+	"crypto/sha256"
+	"encoding/binary"
+	"encoding/json"
+	"fmt"
+	"math"
+	"os"
+	"sort"
+	"time"
+
+	"github.com/rhomb/rhomb/data/prep"
+	"github.com/rhomb/rhomb/net"
+	"github.com/rhomb/rhomb/normalize"
+	"github.com/rhomb/rhomb/optim"
+)
+
+// Load reads and validates the model file at path.
+func Load[T net.Float](path string) (*Model[T], error) {
+	b, err := os.ReadFile(path)
+	if err != nil {
+		return nil, fmt.Errorf("modelfile: %w", err)
+	}
+	return Read[T](b, path)
+}
+
+// Read decodes a model file held in b; source names it in errors. Every
+// size and offset in the file is checked against len(b) before anything
+// is allocated from it, so a file that lies about its contents costs no
+// more memory than its own length. Tensors stored as float64 are rounded
+// when T is float32, and widened in the other direction.
+func Read[T net.Float](b []byte, source string) (*Model[T], error) {
+	fail := func(off int64, err error, format string, args ...any) (*Model[T], error) {
+		return nil, &FormatError{File: source, Offset: off, Err: err, What: fmt.Sprintf(format, args...)}
+	}
+	if len(b) < prefixLen+sumLen {
+		return fail(int64(len(b)), ErrTruncated, "%d bytes is shorter than the smallest model file", len(b))
+	}
+	if string(b[:8]) != magic {
+		return fail(0, ErrMagic, "")
+	}
+	if v := binary.LittleEndian.Uint32(b[8:]); v != formatVersion {
+		return fail(8, ErrVersion, "version %d; this library reads version %d — use the rhomb release that wrote it", v, formatVersion)
+	}
+	hl := int64(binary.LittleEndian.Uint32(b[12:]))
+	if hl > maxHeader {
+		return fail(12, ErrHeader, "header length %d exceeds the %d-byte limit", hl, maxHeader)
+	}
+	if prefixLen+hl+sumLen > int64(len(b)) {
+		return fail(12, ErrTruncated, "header of %d bytes does not fit in %d bytes", hl, len(b))
+	}
+	var h header
+	dec := json.NewDecoder(bytes.NewReader(b[prefixLen : prefixLen+hl]))
+	dec.DisallowUnknownFields()
+	if err := dec.Decode(&h); err != nil {
+		return fail(prefixLen, ErrHeader, "%v", err)
+	}
+	if h.Format != "rhomb-model" {
+		return fail(prefixLen, ErrHeader, "format %q, want \"rhomb-model\"", h.Format)
+	}
+	dataStart := (prefixLen + hl + 7) / 8 * 8
+	dataLen := int64(len(b)) - sumLen - dataStart
+	if dataLen < 0 {
+		return fail(prefixLen+hl, ErrTruncated, "no room for tensor data")
+	}
+
+	// The tensor table: sizes within the file, aligned, not overlapping.
+	if len(h.Tensors) > maxTensors {
+		return fail(prefixLen, ErrHeader, "%d tensors exceed the limit of %d", len(h.Tensors), maxTensors)
+	}
+	type extent struct{ start, end int64 }
+	var extents []extent
+	byName := map[string]*tensorHeader{}
+	var end int64
+	for i := range h.Tensors {
+		t := &h.Tensors[i]
+		size := int64(dtypeSize(t.DType))
+		if size == 0 {
+			return fail(prefixLen, ErrHeader, "tensor %q: unknown dtype %q", t.Name, t.DType)
+		}
+		if byName[t.Name] != nil {
+			return fail(prefixLen, ErrHeader, "tensor %q appears twice", t.Name)
+		}
+		byName[t.Name] = t
+		n := int64(1)
+		for _, d := range t.Shape {
+			if d < 0 || (d > 0 && n > dataLen/int64(d)) {
+				return fail(prefixLen, ErrTruncated, "tensor %q: shape %v does not fit in %d bytes of data", t.Name, t.Shape, dataLen)
+			}
+			n *= int64(d)
+		}
+		if t.Offset < 0 || t.Offset%8 != 0 || t.Offset > dataLen || n*size > dataLen-t.Offset {
+			return fail(dataStart+max(t.Offset, 0), ErrTruncated, "tensor %q: %d bytes at offset %d do not fit in %d bytes of data", t.Name, n*size, t.Offset, dataLen)
+		}
+		extents = append(extents, extent{t.Offset, t.Offset + n*size})
+		end = max(end, (t.Offset+n*size+7)/8*8)
+	}
+	if end != dataLen {
+		return fail(dataStart+end, ErrTruncated, "tensor data is %d bytes, the tensors need %d", dataLen, end)
+	}
+	sort.Slice(extents, func(i, j int) bool { return extents[i].start < extents[j].start })
+	for i := 1; i < len(extents); i++ {
+		if extents[i].start < extents[i-1].end {
+			return fail(dataStart+extents[i].start, ErrHeader, "tensors overlap")
+		}
+	}
+	sum := sha256.Sum256(b[:len(b)-sumLen])
+	if !bytes.Equal(sum[:], b[len(b)-sumLen:]) {
+		return fail(int64(len(b)-sumLen), ErrChecksum, "")
+	}
+
+	// The graph: walk the widths and check every dense layer's weights are
+	// in the file with the right shape before building anything.
+	specs := make([]net.NodeSpec, len(h.Graph))
+	for i, raw := range h.Graph {
+		d := json.NewDecoder(bytes.NewReader(raw))
+		d.DisallowUnknownFields()
+		if err := d.Decode(&specs[i]); err != nil {
+			return fail(prefixLen, ErrHeader, "graph node %d: %v", i, err)
+		}
+	}
+	// Bound what building the graph costs before building it: a poly-relu
+	// fits a least-squares problem of about 400·(d+1)² bytes.
+	if len(specs) > maxNodes {
+		return fail(prefixLen, ErrHeader, "%d nodes exceed the limit of %d", len(specs), maxNodes)
+	}
+	fitCost := 0
+	for _, s := range specs {
+		if s.Kind == "poly-relu" && s.Degree > 0 && s.Degree <= net.PolyMaxDegree {
+			fitCost += (s.Degree + 1) * (s.Degree + 1)
+		}
+	}
+	if fitCost > maxFitCost {
+		return fail(prefixLen, ErrHeader, "polynomial activations of total size %d exceed the limit of %d", fitCost, maxFitCost)
+	}
+	if h.Inputs < 1 {
+		return fail(prefixLen, ErrHeader, "inputs %d", h.Inputs)
+	}
+	width := h.Inputs
+	for i, s := range specs {
+		switch s.Kind {
+		case "constant-one":
+			width++
+		case "dense", "readout":
+			t := byName[s.Name+".W"]
+			if t == nil || t.Role != roleWeight || len(t.Shape) != 2 || t.Shape[0] != s.Units || t.Shape[1] != width {
+				return fail(prefixLen, ErrShape, "node %d %q: want a weight tensor %q of shape [%d %d]", i, s.Name, s.Name+".W", s.Units, width)
+			}
+			width = s.Units
+		}
+	}
+	n, err := net.FromSpec[T](h.Inputs, specs)
+	if err != nil {
+		return fail(prefixLen, ErrShape, "%v", err)
+	}
+	if h.DType != "float32" && h.DType != "float64" {
+		return fail(prefixLen, ErrHeader, "dtype %q", h.DType)
+	}
+	data := b[dataStart : dataStart+dataLen]
+	load := func(t *tensorHeader, dst []T) error {
+		want := 1
+		for _, d := range t.Shape {
+			want *= d
+		}
+		if want != len(dst) {
+			return fmt.Errorf("tensor %q holds %d values, the model needs %d", t.Name, want, len(dst))
+		}
+		src := data[t.Offset:]
+		for i := range dst {
+			var v float64
+			switch t.DType {
+			case "float32":
+				v = float64(math.Float32frombits(binary.LittleEndian.Uint32(src[4*i:])))
+			case "float64":
+				v = math.Float64frombits(binary.LittleEndian.Uint64(src[8*i:]))
+			default:
+				return fmt.Errorf("tensor %q: dtype %s where floats belong", t.Name, t.DType)
+			}
+			if math.IsNaN(v) || math.IsInf(v, 0) {
+				return fmt.Errorf("tensor %q: value %d is %v", t.Name, i, v)
+			}
+			dst[i] = T(v)
+		}
+		return nil
+	}
+	for _, p := range n.Params() {
+		if err := load(byName[p.Name], p.Value); err != nil {
+			return fail(prefixLen, ErrShape, "%v", err)
+		}
+	}
+	m := &Model[T]{Network: n, Classes: h.Classes, Loss: h.Loss, Training: h.Training, Metrics: h.Metrics, Library: h.Library}
+	if h.Created != "" {
+		m.Created, _ = time.Parse(time.RFC3339, h.Created)
+	}
+	if h.Normalization != nil {
+		o, err := h.Normalization.options()
+		if err != nil {
+			return fail(prefixLen, ErrHeader, "normalization: %v", err)
+		}
+		w, err := normalize.Wrap(n, o)
+		if err != nil {
+			return fail(prefixLen, ErrShape, "normalization: %v", err)
+		}
+		for _, p := range w.Params() {
+			if isWeight(n, p) {
+				continue
+			}
+			t := byName[p.Name]
+			if t == nil || t.Role != roleParam {
+				return fail(prefixLen, ErrShape, "normalized parameter %q is missing", p.Name)
+			}
+			if err := load(t, p.Value); err != nil {
+				return fail(prefixLen, ErrShape, "%v", err)
+			}
+		}
+		w.Sync()
+		m.Normalized = w
+	}
+	if len(h.Pipeline) > 0 {
+		var p prep.Pipeline
+		if err := json.Unmarshal(h.Pipeline, &p); err != nil {
+			return fail(prefixLen, ErrHeader, "pipeline: %v", err)
+		}
+		if p.Width() != h.Inputs {
+			return fail(prefixLen, ErrShape, "pipeline makes %d features, the network takes %d", p.Width(), h.Inputs)
+		}
+		m.Pipeline = &p
+	}
+	if c := h.Checkpoint; c != nil {
+		st := optim.State{Step: c.Step, Epoch: c.Epoch, InEpoch: c.InEpoch, EpochLoss: c.EpochLoss, EpochRows: c.EpochRows, BatchRNG: c.BatchRNG, NoiseRNG: c.NoiseRNG, LastLoss: math.NaN()}
+		if c.LastLoss != nil {
+			st.LastLoss = *c.LastLoss
+		}
+		for _, p := range m.Trainable().Params() {
+			t := byName["velocity/"+p.Name]
+			if t == nil {
+				continue
+			}
+			if t.DType != "float64" || len(t.Shape) != 1 || t.Shape[0] != len(p.Value) {
+				return fail(prefixLen, ErrShape, "momentum buffer %q: shape %v %s, want [%d] float64", t.Name, t.Shape, t.DType, len(p.Value))
+			}
+			v := make([]float64, len(p.Value))
+			for i := range v {
+				v[i] = math.Float64frombits(binary.LittleEndian.Uint64(data[t.Offset+8*int64(i):]))
+			}
+			st.Velocity = append(st.Velocity, v)
+		}
+		if st.Velocity != nil && len(st.Velocity) != len(m.Trainable().Params()) {
+			return fail(prefixLen, ErrShape, "%d momentum buffers for %d parameters", len(st.Velocity), len(m.Trainable().Params()))
+		}
+		t := byName["order"]
+		if t == nil || t.Role != roleOrder || t.DType != "int32" || len(t.Shape) != 1 {
+			return fail(prefixLen, ErrShape, "checkpoint without its batch order")
+		}
+		st.Order = make([]int, t.Shape[0])
+		for i := range st.Order {
+			st.Order[i] = int(int32(binary.LittleEndian.Uint32(data[t.Offset+4*int64(i):])))
+		}
+		m.Checkpoint = &st
+	}
+	return m, nil
+}
+
+func (h *normHeader) options() (normalize.Options, error) {
+	o := normalize.Options{PerUnit: h.PerUnit, SkipReadout: h.SkipReadout, NoRetraction: h.NoRetraction, Layers: h.Layers}
+	switch h.Scale {
+	case "per-layer":
+	case "global":
+		o.Scale = normalize.Global
+	default:
+		return o, fmt.Errorf("scale %q", h.Scale)
+	}
+	switch h.Hold {
+	case "multiplier":
+	case "projection":
+		o.Hold = normalize.Projection
+	default:
+		return o, fmt.Errorf("hold %q", h.Hold)
+	}
+	return o, nil
+}
