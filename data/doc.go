@@ -1,6 +1,18 @@
-// Package data holds datasets in the form the trainer reads: features and
-// targets as contiguous row-major matrices, with the square-loss target
-// encodings (±1 for two classes, one-hot for more).
+// Package data reads labelled tables and turns them into the form the
+// trainer reads.
 //
-// Subpackage demo holds rhomb's invented demo data.
+//   - ReadCSV reads a CSV file with a header in one streaming pass: a
+//     label column chosen by name, feature columns typed numeric or
+//     categorical (automatically, or as told), missing values refused,
+//     dropped or kept for imputation, and every problem reported as a
+//     *ParseError with file, line, column and field.
+//   - ReadIDX reads the IDX files of the MNIST family, gzipped or not.
+//   - Stratified and KFold split rows reproducibly from a seed.
+//   - Encode applies a fitted preprocessing pipeline (package data/prep)
+//     and the square-loss label encoding — one ±1 column for two classes,
+//     one-hot rows for more — to give a Set: features and targets as
+//     contiguous row-major matrices.
+//
+// Subpackage prep holds the preprocessing, which serving shares; demo
+// holds rhomb's invented demo data.
 package data

@@ -81,3 +81,23 @@ func ClassOf[T Float](y []T) int {
 	}
 	return best
 }
+
+// Subset returns a new Set holding the given rows, in that order.
+func (s *Set[T]) Subset(rows []int) *Set[T] {
+	out := &Set[T]{Rows: len(rows), Features: s.Features, Outputs: s.Outputs, Classes: s.Classes,
+		X: make([]T, 0, len(rows)*s.Features), Y: make([]T, 0, len(rows)*s.Outputs)}
+	for _, r := range rows {
+		out.X = append(out.X, s.X[r*s.Features:(r+1)*s.Features]...)
+		out.Y = append(out.Y, s.Y[r*s.Outputs:(r+1)*s.Outputs]...)
+	}
+	return out
+}
+
+// Labels returns the class index of every row (see Class).
+func (s *Set[T]) Labels() []int {
+	out := make([]int, s.Rows)
+	for r := range out {
+		out[r] = s.Class(r)
+	}
+	return out
+}

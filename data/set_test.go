@@ -32,3 +32,14 @@ func TestClass(t *testing.T) {
 		t.Error("ClassOf")
 	}
 }
+
+func TestSubset(t *testing.T) {
+	s := data.Set[float64]{X: []float64{1, 2, 3, 4, 5, 6}, Y: []float64{0, 1, 1, 0, 0, 1}, Rows: 3, Features: 2, Outputs: 2}
+	sub := s.Subset([]int{2, 0})
+	if sub.Rows != 2 || sub.X[0] != 5 || sub.X[3] != 2 || sub.Y[1] != 1 || sub.Y[2] != 0 {
+		t.Errorf("subset %+v", sub)
+	}
+	if l := s.Labels(); l[0] != 1 || l[1] != 0 || l[2] != 1 {
+		t.Errorf("labels %v", l)
+	}
+}

@@ -101,10 +101,14 @@ var (
 	ErrEmpty           = prep.ErrEmpty
 	ErrDuplicateHeader = prep.ErrDuplicateHeader
 	ErrNoLabel         = prep.ErrNoLabel
+	// ErrNoColumn is ErrNoLabel by a name that reads better where an
+	// option other than the label names an unknown column.
+	ErrNoColumn        = prep.ErrNoLabel
 	ErrRagged          = prep.ErrRagged
 	ErrMissing         = prep.ErrMissing
 	ErrNotNumber       = prep.ErrNotNumber
 	ErrInfinite        = prep.ErrInfinite
 	ErrOneClass        = prep.ErrOneClass
 	ErrUnknownCategory = prep.ErrUnknownCategory
+	ErrUnknownField    = prep.ErrUnknownField
 )

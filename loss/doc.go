@@ -35,8 +35,10 @@
 //	CrossEntropy  −Σ_j y_j log softmax(f)_j            "cross-entropy"
 //	Logistic      log(1 + exp(−y f))                   "logistic"
 //	Exponential   exp(−y f)                            "exponential"
+//	Weighted      w_class(y)·ℓ(f, y) for an inner loss ℓ   "weighted-" + inner name
 //
-// The last column is Name, the identifier used in logs and model files.
+// Weighted scales each row's loss by its class's weight (for imbalanced
+// labels; see data.ClassWeights). The last column is Name, the identifier used in logs and model files.
 // Every loss is an empty or small value type, usable as its zero value
 // (Rescaled{} is Square divided by C), safe for concurrent use, and
 // allocation-free. The square losses are quadratic in the outputs and

@@ -48,9 +48,9 @@ func ExampleTrainer() {
 	res, err := tr.Run(context.Background())
 	fmt.Println(res.Status, res.Epochs, res.Steps, err)
 	// Output:
-	// epoch 10: loss 0.069, ρ 1.85, ρ* 1.79, train margin ≤ 0 on 10 rows
-	// epoch 20: loss 0.063, ρ 2.01, ρ* 1.8, train margin ≤ 0 on 11 rows
-	// epoch 30: loss 0.058, ρ 2.13, ρ* 2.04, train margin ≤ 0 on 12 rows
+	// epoch 10: loss 0.065, ρ 1.79, ρ* 1.77, train margin ≤ 0 on 5 rows
+	// epoch 20: loss 0.058, ρ 1.93, ρ* 1.96, train margin ≤ 0 on 4 rows
+	// epoch 30: loss 0.055, ρ 2.03, ρ* 2.06, train margin ≤ 0 on 4 rows
 	// finished 30 870 <nil>
 }
 

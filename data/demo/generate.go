@@ -25,6 +25,11 @@
 //	suction_kpa         N(120, 15); N(62, 18) for cavitation
 //	site                one of north-yard, river-intake, east-tank (no effect on the label)
 //
+// Like real gateway logs the file has defects for the pipeline to handle:
+// the temperature probe drops out on 3% of readings (written NA) and the
+// suction transmitter on 1% (an empty cell), independently of the
+// condition; site is a categorical column.
+//
 // The conditions overlap by design (a worn bearing at light load looks
 // healthy), so no classifier reaches 100%.
 package demo
@@ -90,6 +95,12 @@ func Generate(w io.Writer, seed uint64, rows int) error {
 			suc = 62 + 18*rng.NormFloat64()
 		}
 		rec := []string{sites[rng.IntN(len(sites))], f(rms, 3), f(kurt, 3), f(crest, 3), f(b1, 4), f(hf, 4), f(temp, 2), f(cur, 2), f(suc, 1), Conditions[c]}
+		if rng.Float64() < 0.03 {
+			rec[6] = "NA"
+		}
+		if rng.Float64() < 0.01 {
+			rec[8] = ""
+		}
 		if err := cw.Write(rec); err != nil {
 			return err
 		}

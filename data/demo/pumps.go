@@ -3,12 +3,10 @@ package demo
 import (
 	"bytes"
 	_ "embed"
-	"encoding/csv"
 	"fmt"
-	"math"
-	"strconv"
 
 	"github.com/rhomb/rhomb/data"
+	"github.com/rhomb/rhomb/data/prep"
 )
 
 //go:generate go run ./gen -out pumps.csv
@@ -18,71 +16,47 @@ import (
 //go:embed pumps.csv
 var CSV []byte
 
-// Split is the demo data ready to train on: the numeric features
-// standardized with the training rows' means and deviations, one-hot
-// targets over Conditions.
+// Label is the name of the label column.
+const Label = "condition"
+
+// Split is the demo data ready to train on.
 type Split[T data.Float] struct {
+	Table       *data.Table    // the file as read, missing cells marked
+	Pipeline    *prep.Pipeline // fitted on the training rows
 	Train, Test *data.Set[T]
-	Features    []string
-	Mean, Std   []float64 // per feature, from the training rows
 }
 
-// Pumps parses the embedded file and returns its numeric features (the site
-// column is left out), with the first trainRows rows for training and the
-// rest for testing. The rows were generated independently, so the split
+// Pumps reads the embedded file through the same path as any CSV — the
+// reader keeps rows with missing cells, a pipeline fitted on the first
+// trainRows rows imputes them, one-hot encodes the site and standardizes
+// the rest — and returns the first trainRows rows for training and the
+// others for testing. The rows were generated independently, so the split
 // needs no shuffling.
 func Pumps[T data.Float](trainRows int) (*Split[T], error) {
-	recs, err := csv.NewReader(bytes.NewReader(CSV)).ReadAll()
+	t, err := data.ReadCSV(bytes.NewReader(CSV), "pumps.csv", data.CSVOptions{Label: Label, OnMissing: data.MissingKeep})
 	if err != nil {
-		return nil, fmt.Errorf("demo: embedded pumps.csv: %w", err)
+		return nil, fmt.Errorf("demo: %w", err)
 	}
-	recs = recs[1:]
-	if trainRows < 1 || trainRows >= len(recs) {
-		return nil, fmt.Errorf("demo: trainRows = %d; want 1 to %d", trainRows, len(recs)-1)
+	if trainRows < 1 || trainRows >= t.Rows {
+		return nil, fmt.Errorf("demo: trainRows = %d; want 1 to %d", trainRows, t.Rows-1)
 	}
-	feats := Header[1 : len(Header)-1]
-	nf, nc := len(feats), len(Conditions)
-	class := map[string]int{}
-	for i, c := range Conditions {
-		class[c] = i
+	train, test := make([]int, trainRows), make([]int, t.Rows-trainRows)
+	for i := range train {
+		train[i] = i
 	}
-	x := make([]float64, len(recs)*nf)
-	y := make([]T, len(recs)*nc)
-	for r, rec := range recs {
-		for j := range nf {
-			v, err := strconv.ParseFloat(rec[j+1], 64)
-			if err != nil {
-				return nil, fmt.Errorf("demo: pumps.csv line %d, column %q: %w", r+2, feats[j], err)
-			}
-			x[r*nf+j] = v
-		}
-		c, ok := class[rec[len(rec)-1]]
-		if !ok {
-			return nil, fmt.Errorf("demo: pumps.csv line %d: unknown condition %q", r+2, rec[len(rec)-1])
-		}
-		y[r*nc+c] = 1
+	for i := range test {
+		test[i] = trainRows + i
 	}
-	s := &Split[T]{Features: feats, Mean: make([]float64, nf), Std: make([]float64, nf)}
-	for j := range nf {
-		var sum, ssq float64
-		for r := range trainRows {
-			sum += x[r*nf+j]
-		}
-		s.Mean[j] = sum / float64(trainRows)
-		for r := range trainRows {
-			d := x[r*nf+j] - s.Mean[j]
-			ssq += d * d
-		}
-		s.Std[j] = math.Sqrt(ssq / float64(trainRows-1))
+	p, err := prep.Fit(t.Columns, train, prep.Options{Impute: true})
+	if err != nil {
+		return nil, fmt.Errorf("demo: %w", err)
 	}
-	xs := make([]T, len(x))
-	for i, v := range x {
-		j := i % nf
-		xs[i] = T((v - s.Mean[j]) / s.Std[j])
+	s := &Split[T]{Table: t, Pipeline: p}
+	if s.Train, err = data.Encode[T](t, train, p, Conditions); err != nil {
+		return nil, fmt.Errorf("demo: %w", err)
 	}
-	mk := func(from, to int) *data.Set[T] {
-		return &data.Set[T]{X: xs[from*nf : to*nf], Y: y[from*nc : to*nc], Rows: to - from, Features: nf, Outputs: nc, Classes: Conditions}
+	if s.Test, err = data.Encode[T](t, test, p, Conditions); err != nil {
+		return nil, fmt.Errorf("demo: %w", err)
 	}
-	s.Train, s.Test = mk(0, trainRows), mk(trainRows, len(recs))
 	return s, nil
 }

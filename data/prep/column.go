@@ -97,7 +97,7 @@ func ParseNumber(s string) (float64, error) {
 
 // Sentinel errors shared by the readers and the pipeline.
 var (
-	ErrEmpty           = errors.New("no data: the file is empty or has only a header")
+	ErrEmpty           = errors.New("no rows to read: the file is empty, has only a header, or every row was dropped")
 	ErrDuplicateHeader = errors.New("duplicate column name in the header")
 	ErrNoLabel         = errors.New("no column of that name in the header")
 	ErrRagged          = errors.New("wrong number of fields")

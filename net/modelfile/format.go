@@ -82,6 +82,7 @@ type header struct {
 	Tensors       []tensorHeader    `json:"tensors"`
 	Pipeline      json.RawMessage   `json:"pipeline,omitempty"`
 	Classes       []string          `json:"classes,omitempty"`
+	Label         string            `json:"label,omitempty"`
 	Loss          string            `json:"loss,omitempty"`
 	Training      json.RawMessage   `json:"training,omitempty"`
 	Metrics       map[string]any    `json:"metrics,omitempty"`

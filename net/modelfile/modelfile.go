@@ -32,6 +32,8 @@ type Model[T net.Float] struct {
 	// Classes names the outputs' classes (for one ±1 output, the −1 class
 	// first).
 	Classes []string
+	// Label names the label column of the training data, when it had one.
+	Label string
 	// Loss is the name of the loss trained with.
 	Loss string
 	// Training is the caller's record of how the model was trained, any
@@ -91,7 +93,7 @@ func encode[T net.Float](m *Model[T]) ([]byte, error) {
 	h := header{
 		Format: "rhomb-model", Library: "rhomb " + version.Version,
 		Created: time.Now().UTC().Format(time.RFC3339), DType: dtypeOf[T](),
-		Inputs: m.Network.In(), Classes: m.Classes, Loss: m.Loss,
+		Inputs: m.Network.In(), Classes: m.Classes, Label: m.Label, Loss: m.Loss,
 		Training: m.Training, Metrics: m.Metrics,
 	}
 	for _, s := range specs {

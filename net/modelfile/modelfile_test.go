@@ -68,7 +68,7 @@ func encode[T net.Float](t testing.TB, m *modelfile.Model[T]) []byte {
 
 func TestRoundTripPlain(t *testing.T) {
 	n := network[float32](t, 1)
-	m := &modelfile.Model[float32]{Network: n, Classes: []string{"a", "b", "c"}, Loss: "square",
+	m := &modelfile.Model[float32]{Network: n, Classes: []string{"a", "b", "c"}, Label: "kind", Loss: "square",
 		Training: json.RawMessage(`{"epochs":3}`), Metrics: map[string]any{"accuracy": 0.75}}
 	got, err := modelfile.Read[float32](encode(t, m), "mem")
 	if err != nil {
@@ -78,7 +78,7 @@ func TestRoundTripPlain(t *testing.T) {
 	if got.Normalized != nil || got.Checkpoint != nil || got.Pipeline != nil {
 		t.Error("a plain model came back with extra parts")
 	}
-	if strings.Join(got.Classes, ",") != "a,b,c" || got.Loss != "square" || string(got.Training) != `{"epochs":3}` || got.Metrics["accuracy"] != 0.75 {
+	if strings.Join(got.Classes, ",") != "a,b,c" || got.Label != "kind" || got.Loss != "square" || string(got.Training) != `{"epochs":3}` || got.Metrics["accuracy"] != 0.75 {
 		t.Errorf("metadata: %+v", got)
 	}
 	if !strings.HasPrefix(got.Library, "rhomb ") || got.Created.IsZero() {

@@ -190,7 +190,7 @@ func Read[T net.Float](b []byte, source string) (*Model[T], error) {
 			return fail(prefixLen, ErrShape, "%v", err)
 		}
 	}
-	m := &Model[T]{Network: n, Classes: h.Classes, Loss: h.Loss, Training: h.Training, Metrics: h.Metrics, Library: h.Library}
+	m := &Model[T]{Network: n, Classes: h.Classes, Label: h.Label, Loss: h.Loss, Training: h.Training, Metrics: h.Metrics, Library: h.Library}
 	if h.Created != "" {
 		m.Created, _ = time.Parse(time.RFC3339, h.Created)
 	}
@@ -221,6 +221,9 @@ func Read[T net.Float](b []byte, source string) (*Model[T], error) {
 	if len(h.Pipeline) > 0 {
 		var p prep.Pipeline
 		if err := json.Unmarshal(h.Pipeline, &p); err != nil {
+			return fail(prefixLen, ErrHeader, "pipeline: %v", err)
+		}
+		if err := p.Validate(); err != nil {
 			return fail(prefixLen, ErrHeader, "pipeline: %v", err)
 		}
 		if p.Width() != h.Inputs {

@@ -1,0 +1,630 @@
+package prep
+
+import (
+	"errors"
+	"fmt"
+	"math"
+	"slices"
+	"strconv"
+	"strings"
+)
+
+// Options says how Fit builds a Pipeline. The zero value standardizes every
+// numeric column, one-hot encodes every categorical column, imputes
+// nothing (a missing value is an error), treats a category not seen in
+// training as an error, and recognizes DefaultMissing as missing-value
+// markers when serving.
+type Options struct {
+	// Impute fills missing values instead of rejecting them: with the mean
+	// of a numeric column, with the most frequent category of a
+	// categorical one (ties go to the first in sorted order). Both are
+	// fitted on the training rows only, so nothing about the validation or
+	// test rows leaks into the model. False: a missing value in a training
+	// row makes Fit fail, and one met later makes Apply fail with
+	// ErrMissing.
+	Impute bool
+	// NoStandardize passes numeric values through unchanged. False: each
+	// numeric column is centred on its training mean and divided by its
+	// training standard deviation, which keeps the inputs of a bias-free
+	// network on a common scale.
+	NoStandardize bool
+	// UnitNorm scales every encoded row to unit Euclidean norm after
+	// encoding, so that the network's output depends on the direction of
+	// the input only (a bias-free ReLU network is positively homogeneous
+	// in its input). A row of zeros stays zero. False: rows are left as
+	// encoded.
+	UnitNorm bool
+	// UnknownAsZeros encodes a category not seen in training as a one-hot
+	// block of zeros, so serving keeps answering when a new category
+	// appears. False: such a value is an error wrapping ErrUnknownCategory.
+	UnknownAsZeros bool
+	// Missing are the cell values that the serving path (ApplyStrings,
+	// ApplyMap) reads as missing; they should be the markers the training
+	// data was read with. Nil means DefaultMissing; an empty, non-nil
+	// slice means no marker at all.
+	Missing []string
+}
+
+// Pipeline is a fitted preprocessing: one Step per input column, in the
+// order of the columns it was fitted on, turning the raw cells of a row
+// into Width features.
+//
+// It is stored inside model files as JSON. All its state is in exported
+// fields, and encoding/json writes every float64 in its shortest form that
+// parses back to the same bits, so a decoded Pipeline gives bit-identical
+// features. Call Validate on one decoded from a file before use.
+//
+// The training path (ApplyColumns) and the serving paths (ApplyStrings,
+// ApplyMap) pass each value through the same encoder, so the same cell
+// gives the same bits in both. A Pipeline is safe for concurrent use once
+// built, and its Apply methods allocate nothing unless they fail.
+type Pipeline struct {
+	Steps []Step `json:"steps"`
+	// The settings of Options, as fitted.
+	Impute         bool     `json:"impute"`
+	UnitNorm       bool     `json:"unit_norm"`
+	UnknownAsZeros bool     `json:"unknown_as_zeros"`
+	Missing        []string `json:"missing"`
+}
+
+// Step is the fitted encoding of one input column.
+//
+// A numeric value x becomes one feature (x − Mean)/Scale. When the
+// pipeline standardizes, Mean and Scale are the mean and the sample
+// standard deviation (divisor n − 1) of the column over the training rows;
+// a column that is constant on the training rows, or has a single training
+// value, has no spread to divide by and gets Scale 1, so its feature is 0
+// on the training rows. Without standardizing, Mean is 0 and Scale 1.
+//
+// A categorical value becomes len(Categories) features: a one-hot block
+// with the 1 at the value's index in Categories, which holds the
+// categories of the training rows in sorted (byte-wise) order. Surrounding
+// spaces of a cell are ignored, as by IsMissing and ParseNumber.
+type Step struct {
+	Name  string  `json:"name"`
+	Kind  Kind    `json:"kind"`
+	Mean  float64 `json:"mean"`
+	Scale float64 `json:"scale"`
+	// Fill is the raw value put in place of a missing numeric value when
+	// the pipeline imputes: the training mean. 0 otherwise.
+	Fill float64 `json:"fill"`
+	// FillCategory is the category put in place of a missing categorical
+	// value when the pipeline imputes: the most frequent on the training
+	// rows. "" otherwise.
+	FillCategory string   `json:"fill_category,omitempty"`
+	Categories   []string `json:"categories,omitempty"`
+}
+
+// width is the number of features the step writes.
+func (s *Step) width() int {
+	if s.Kind == Categorical {
+		return len(s.Categories)
+	}
+	return 1
+}
+
+// FieldError reports a value that could not be encoded, or a training
+// column that could not be fitted. Row is the table row for Fit and
+// ApplyColumns, and -1 on the serving paths, which see one row at a time.
+// Value is the cell as read ("" when there is none). Err is a sentinel of
+// this package (ErrMissing, ErrNotNumber, ErrInfinite, ErrUnknownCategory,
+// ErrUnknownField, ErrRagged), possibly wrapped; errors.Is finds it.
+type FieldError struct {
+	Field string
+	Row   int
+	Value string
+	Err   error
+}
+
+func (e *FieldError) Error() string {
+	var b strings.Builder
+	b.WriteString("prep: ")
+	if e.Field != "" {
+		fmt.Fprintf(&b, "field %q", e.Field)
+	} else {
+		b.WriteString("input")
+	}
+	if e.Row >= 0 {
+		fmt.Fprintf(&b, ", row %d", e.Row)
+	}
+	if e.Value != "" {
+		fmt.Fprintf(&b, ": value %q", e.Value)
+	}
+	b.WriteString(": ")
+	b.WriteString(e.Err.Error())
+	if h := hint(e.Err); h != "" {
+		b.WriteString("; ")
+		b.WriteString(h)
+	}
+	return b.String()
+}
+
+func (e *FieldError) Unwrap() error { return e.Err }
+
+// hint says what to do about an error.
+func hint(err error) string {
+	switch {
+	case errors.Is(err, ErrMissing):
+		return "supply a value, drop the row, or fit the pipeline with Options.Impute"
+	case errors.Is(err, ErrUnknownCategory):
+		return "check the spelling, refit with training rows that hold this category, or fit with Options.UnknownAsZeros to encode it as zeros"
+	case errors.Is(err, ErrNotNumber):
+		return "the field is numeric: give a decimal number such as 2.5, or a missing-value marker"
+	case errors.Is(err, ErrInfinite):
+		return "give finite numbers, small enough in size to be centred and scaled in float64"
+	case errors.Is(err, ErrUnknownField):
+		return "give only the fields that Pipeline.Inputs lists, under those names"
+	case errors.Is(err, ErrRagged):
+		return "give one field per input, in the order of Pipeline.Inputs"
+	}
+	return ""
+}
+
+// errOverflow is returned when a finite value leaves float64's range once
+// centred and scaled; allocated once so the error path of Apply is cheap.
+var errOverflow = fmt.Errorf("%w after centring and scaling (the value is far outside the training data's range)", ErrInfinite)
+
+// Fit fits a pipeline to the feature columns cols on the training rows
+// rows (row indices into the columns; nil means every row). Only the
+// training rows are looked at, so statistics of held-out rows cannot leak
+// into the model; held-out rows are then encoded with ApplyColumns.
+//
+// Every column must be Numeric or Categorical, have a unique, non-empty
+// name and the same number of rows; a row is missing in a column when
+// Column.Missing says so, when a numeric value is NaN, or when a
+// categorical cell is one of the pipeline's missing markers. Fit fails
+// with a *FieldError when a training row is missing and Options.Impute is
+// false, when a numeric value is infinite, and when a column has no
+// non-missing training value.
+func Fit(cols []Column, rows []int, o Options) (*Pipeline, error) {
+	if len(cols) == 0 {
+		return nil, errors.New("prep: Fit: no feature columns")
+	}
+	n := colLen(&cols[0])
+	seen := make(map[string]bool, len(cols))
+	for i := range cols {
+		c := &cols[i]
+		if c.Name == "" {
+			return nil, fmt.Errorf("prep: Fit: column %d has no name; name every column, since serving finds fields by name", i)
+		}
+		if seen[c.Name] {
+			return nil, &FieldError{Field: c.Name, Row: -1, Err: ErrDuplicateHeader}
+		}
+		seen[c.Name] = true
+		if c.Kind != Numeric && c.Kind != Categorical {
+			return nil, fmt.Errorf("prep: Fit: column %q has kind %v; want numeric or categorical (a reader resolves auto)", c.Name, c.Kind)
+		}
+		if m := colLen(c); m != n {
+			return nil, fmt.Errorf("prep: Fit: column %q has %d rows, column %q has %d; columns of one table must have equal length", c.Name, m, cols[0].Name, n)
+		}
+		if c.Missing != nil && len(c.Missing) != n {
+			return nil, fmt.Errorf("prep: Fit: column %q has %d values and %d missing flags; want one flag per row (or none)", c.Name, n, len(c.Missing))
+		}
+	}
+	if rows == nil {
+		rows = make([]int, n)
+		for r := range rows {
+			rows[r] = r
+		}
+	}
+	if len(rows) == 0 {
+		return nil, errors.New("prep: Fit: no training rows; pass nil for all rows")
+	}
+	for _, r := range rows {
+		if r < 0 || r >= n {
+			return nil, fmt.Errorf("prep: Fit: training row %d out of range [0, %d)", r, n)
+		}
+	}
+
+	p := &Pipeline{
+		Steps:          make([]Step, len(cols)),
+		Impute:         o.Impute,
+		UnitNorm:       o.UnitNorm,
+		UnknownAsZeros: o.UnknownAsZeros,
+	}
+	markers := o.Missing
+	if markers == nil {
+		markers = DefaultMissing
+	}
+	p.Missing = make([]string, len(markers))
+	copy(p.Missing, markers)
+
+	for i := range cols {
+		var err error
+		if cols[i].Kind == Numeric {
+			p.Steps[i], err = fitNumeric(&cols[i], rows, o)
+		} else {
+			p.Steps[i], err = fitCategorical(&cols[i], rows, o, p.Missing)
+		}
+		if err != nil {
+			return nil, err
+		}
+	}
+	return p, nil
+}
+
+func colLen(c *Column) int {
+	if c.Kind == Categorical {
+		return len(c.Cat)
+	}
+	return len(c.Num)
+}
+
+func flagged(c *Column, r int) bool { return c.Missing != nil && c.Missing[r] }
+
+func fitNumeric(c *Column, rows []int, o Options) (Step, error) {
+	s := Step{Name: c.Name, Kind: Numeric, Scale: 1}
+	// Mean shifted by the first value: exact for a constant column (so it
+	// gets variance 0, not rounding noise), and accurate when the values
+	// are large compared with their spread.
+	var shift, sum float64
+	m := 0
+	for _, r := range rows {
+		x := c.Num[r]
+		if flagged(c, r) || math.IsNaN(x) {
+			if !o.Impute {
+				return s, &FieldError{Field: c.Name, Row: r, Value: "NaN", Err: ErrMissing}
+			}
+			continue
+		}
+		if math.IsInf(x, 0) {
+			return s, &FieldError{Field: c.Name, Row: r, Value: strconv.FormatFloat(x, 'g', -1, 64), Err: ErrInfinite}
+		}
+		if m == 0 {
+			shift = x
+		}
+		sum += x - shift
+		m++
+	}
+	if m == 0 {
+		return s, &FieldError{Field: c.Name, Row: -1, Err: fmt.Errorf("%w in every training row: nothing to fit", ErrMissing)}
+	}
+	mean := shift + sum/float64(m)
+	// The squared deviations are summed relative to the largest one, big,
+	// so that a column of values near 1e200 or 1e-200 does not overflow
+	// or underflow to a spread of Inf or 0: sd = big·√(Σ(d/big)²/(m−1)).
+	var big, ss float64
+	for _, r := range rows {
+		if x := c.Num[r]; !flagged(c, r) && !math.IsNaN(x) {
+			big = max(big, math.Abs(x-mean))
+		}
+	}
+	if big > 0 {
+		for _, r := range rows {
+			if x := c.Num[r]; !flagged(c, r) && !math.IsNaN(x) {
+				d := (x - mean) / big
+				ss += d * d
+			}
+		}
+	}
+	sd := 0.0
+	if m > 1 {
+		sd = big * math.Sqrt(ss/float64(m-1))
+	}
+	if math.IsInf(mean, 0) || math.IsNaN(mean) || math.IsInf(sd, 0) || math.IsNaN(sd) {
+		return s, &FieldError{Field: c.Name, Row: -1, Err: fmt.Errorf("%w: the mean or spread of the training values overflows float64; rescale the column", ErrInfinite)}
+	}
+	if o.Impute {
+		s.Fill = mean
+	}
+	if !o.NoStandardize {
+		s.Mean = mean
+		if sd > 0 {
+			s.Scale = sd
+		}
+	}
+	return s, nil
+}
+
+func fitCategorical(c *Column, rows []int, o Options, markers []string) (Step, error) {
+	s := Step{Name: c.Name, Kind: Categorical, Scale: 1}
+	count := map[string]int{}
+	for _, r := range rows {
+		v := c.Cat[r]
+		if flagged(c, r) || IsMissing(v, markers) {
+			if !o.Impute {
+				return s, &FieldError{Field: c.Name, Row: r, Value: v, Err: ErrMissing}
+			}
+			continue
+		}
+		count[strings.TrimSpace(v)]++
+	}
+	if len(count) == 0 {
+		return s, &FieldError{Field: c.Name, Row: -1, Err: fmt.Errorf("%w in every training row: no category to encode", ErrMissing)}
+	}
+	s.Categories = make([]string, 0, len(count))
+	for v := range count {
+		s.Categories = append(s.Categories, v)
+	}
+	slices.Sort(s.Categories)
+	if o.Impute {
+		best := -1
+		for _, v := range s.Categories { // sorted: the first of tied counts wins
+			if count[v] > best {
+				best, s.FillCategory = count[v], v
+			}
+		}
+	}
+	return s, nil
+}
+
+// Validate checks a pipeline decoded from a file: every step numeric or
+// categorical with a unique non-empty name, finite Mean and Fill, a finite
+// positive Scale, and non-empty, sorted, distinct Categories. The Apply
+// methods assume a valid pipeline.
+func (p *Pipeline) Validate() error {
+	if len(p.Steps) == 0 {
+		return errors.New("prep: pipeline has no steps")
+	}
+	seen := map[string]bool{}
+	for i := range p.Steps {
+		s := &p.Steps[i]
+		bad := func(what string) error {
+			return fmt.Errorf("prep: pipeline step %d (%q): %s; the model file is damaged or was not written by this package", i, s.Name, what)
+		}
+		switch {
+		case s.Name == "":
+			return bad("no name")
+		case seen[s.Name]:
+			return bad("duplicate name")
+		case s.Kind != Numeric && s.Kind != Categorical:
+			return bad("kind " + s.Kind.String())
+		case !finite(s.Mean) || !finite(s.Fill):
+			return bad("mean or fill not finite")
+		case !finite(s.Scale) || !(s.Scale > 0):
+			return bad("scale not finite and positive")
+		}
+		seen[s.Name] = true
+		if s.Kind == Categorical {
+			if len(s.Categories) == 0 {
+				return bad("no categories")
+			}
+			for j := 1; j < len(s.Categories); j++ {
+				if !(s.Categories[j-1] < s.Categories[j]) {
+					return bad("categories not sorted and distinct")
+				}
+			}
+		}
+	}
+	return nil
+}
+
+func finite(x float64) bool { return !math.IsNaN(x) && !math.IsInf(x, 0) }
+
+// Width returns the number of features a row encodes to.
+func (p *Pipeline) Width() int {
+	w := 0
+	for i := range p.Steps {
+		w += p.Steps[i].width()
+	}
+	return w
+}
+
+// FeatureNames returns the name of every feature, in order: the column
+// name for a numeric column, "column=category" for each one-hot feature
+// (for example "site=north-yard").
+func (p *Pipeline) FeatureNames() []string {
+	out := make([]string, 0, p.Width())
+	for i := range p.Steps {
+		s := &p.Steps[i]
+		if s.Kind == Categorical {
+			for _, c := range s.Categories {
+				out = append(out, s.Name+"="+c)
+			}
+		} else {
+			out = append(out, s.Name)
+		}
+	}
+	return out
+}
+
+// Inputs returns the names of the input columns, in the order ApplyStrings
+// expects the fields.
+func (p *Pipeline) Inputs() []string {
+	out := make([]string, len(p.Steps))
+	for i := range p.Steps {
+		out[i] = p.Steps[i].Name
+	}
+	return out
+}
+
+// ApplyColumns encodes row of the table columns cols, which must be the
+// columns the pipeline was fitted on (same names, kinds and order), into
+// the first Width values of dst. It is the training path; held-out rows of
+// the same table go through it too. On error dst holds partial output.
+//
+// It panics when dst is shorter than Width or row is out of range, and
+// returns an error when cols do not match the pipeline's inputs.
+func (p *Pipeline) ApplyColumns(cols []Column, row int, dst []float64) error {
+	dst = p.dst(dst)
+	if len(cols) != len(p.Steps) {
+		return &FieldError{Row: row, Err: fmt.Errorf("%w: %d columns, the pipeline has %d inputs", ErrRagged, len(cols), len(p.Steps))}
+	}
+	at := 0
+	for i := range p.Steps {
+		s, c := &p.Steps[i], &cols[i]
+		if c.Name != s.Name || c.Kind != s.Kind {
+			return &FieldError{Field: c.Name, Row: row, Err: fmt.Errorf("%w: column %d is %q (%v), the pipeline expects %q (%v) there; read the data with the training columns in their order", ErrUnknownField, i, c.Name, c.Kind, s.Name, s.Kind)}
+		}
+		if row < 0 || row >= colLen(c) {
+			panic(fmt.Sprintf("prep: ApplyColumns: row %d out of range [0, %d) of column %q", row, colLen(c), c.Name))
+		}
+		w := s.width()
+		var err error
+		if s.Kind == Numeric {
+			x := c.Num[row]
+			err = p.encodeNumber(s, x, flagged(c, row) || math.IsNaN(x), dst[at:at+w])
+			if err != nil {
+				return &FieldError{Field: s.Name, Row: row, Value: strconv.FormatFloat(x, 'g', -1, 64), Err: err}
+			}
+		} else {
+			v := c.Cat[row]
+			if err = p.encodeCategory(s, v, flagged(c, row) || IsMissing(v, p.Missing), dst[at:at+w]); err != nil {
+				return &FieldError{Field: s.Name, Row: row, Value: v, Err: err}
+			}
+		}
+		at += w
+	}
+	p.finish(dst)
+	return nil
+}
+
+// ApplyStrings encodes one row given as raw cell strings, one per input in
+// the order of Inputs, into the first Width values of dst: the serving
+// path. Numeric cells are parsed with ParseNumber, and a cell is missing
+// when IsMissing(cell, p.Missing). It panics when dst is shorter than
+// Width. On error dst holds partial output.
+func (p *Pipeline) ApplyStrings(fields []string, dst []float64) error {
+	dst = p.dst(dst)
+	if len(fields) != len(p.Steps) {
+		return &FieldError{Row: -1, Err: fmt.Errorf("%w: %d fields, the model has %d inputs", ErrRagged, len(fields), len(p.Steps))}
+	}
+	at := 0
+	for i := range p.Steps {
+		s := &p.Steps[i]
+		w := s.width()
+		if err := p.encodeCell(s, fields[i], IsMissing(fields[i], p.Missing), dst[at:at+w]); err != nil {
+			return &FieldError{Field: s.Name, Row: -1, Value: fields[i], Err: err}
+		}
+		at += w
+	}
+	p.finish(dst)
+	return nil
+}
+
+// ApplyMap encodes one row given as raw cell strings by input name into the
+// first Width values of dst, like ApplyStrings. An input absent from fields
+// is missing: an error wrapping ErrMissing, or imputed when the pipeline
+// imputes. A key that names no input is an error wrapping ErrUnknownField,
+// so a misspelt name is not silently taken as missing. It panics when dst
+// is shorter than Width. On error dst holds partial output.
+func (p *Pipeline) ApplyMap(fields map[string]string, dst []float64) error {
+	dst = p.dst(dst)
+	found := 0
+	for i := range p.Steps {
+		if _, ok := fields[p.Steps[i].Name]; ok {
+			found++
+		}
+	}
+	if found < len(fields) {
+		var extra []string
+		for k := range fields {
+			if !slices.ContainsFunc(p.Steps, func(s Step) bool { return s.Name == k }) {
+				extra = append(extra, k)
+			}
+		}
+		slices.Sort(extra)
+		return &FieldError{Field: extra[0], Row: -1, Err: ErrUnknownField}
+	}
+	at := 0
+	for i := range p.Steps {
+		s := &p.Steps[i]
+		w := s.width()
+		v, ok := fields[s.Name]
+		if !ok && !p.Impute {
+			return &FieldError{Field: s.Name, Row: -1, Err: fmt.Errorf("%w: the row has no field of this name", ErrMissing)}
+		}
+		if err := p.encodeCell(s, v, !ok || IsMissing(v, p.Missing), dst[at:at+w]); err != nil {
+			return &FieldError{Field: s.Name, Row: -1, Value: v, Err: err}
+		}
+		at += w
+	}
+	p.finish(dst)
+	return nil
+}
+
+// dst checks the length of dst and returns its first Width values.
+func (p *Pipeline) dst(dst []float64) []float64 {
+	w := p.Width()
+	if len(dst) < w {
+		panic(fmt.Sprintf("prep: destination holds %d values, the pipeline writes %d (Width)", len(dst), w))
+	}
+	return dst[:w]
+}
+
+// encodeCell parses a raw cell of a numeric step and encodes it; a
+// categorical cell goes to encodeCategory as it is.
+func (p *Pipeline) encodeCell(s *Step, cell string, missing bool, dst []float64) error {
+	if s.Kind == Categorical {
+		return p.encodeCategory(s, cell, missing, dst)
+	}
+	var x float64
+	if !missing {
+		var err error
+		if x, err = ParseNumber(cell); err != nil {
+			return err
+		}
+	}
+	return p.encodeNumber(s, x, missing, dst)
+}
+
+// encodeNumber is the one encoder of numeric values, shared by the
+// training and serving paths. dst has length 1.
+func (p *Pipeline) encodeNumber(s *Step, x float64, missing bool, dst []float64) error {
+	if missing {
+		if !p.Impute {
+			return ErrMissing
+		}
+		x = s.Fill
+	}
+	if math.IsInf(x, 0) {
+		return ErrInfinite
+	}
+	v := (x - s.Mean) / s.Scale
+	if !finite(v) {
+		return errOverflow
+	}
+	dst[0] = v
+	return nil
+}
+
+// encodeCategory is the one encoder of categorical values, shared by the
+// training and serving paths. dst has length len(s.Categories).
+func (p *Pipeline) encodeCategory(s *Step, v string, missing bool, dst []float64) error {
+	clear(dst)
+	if missing {
+		if !p.Impute {
+			return ErrMissing
+		}
+		v = s.FillCategory
+	}
+	j, ok := slices.BinarySearch(s.Categories, strings.TrimSpace(v))
+	if !ok {
+		if p.UnknownAsZeros {
+			return nil
+		}
+		return ErrUnknownCategory
+	}
+	dst[j] = 1
+	return nil
+}
+
+// finish applies the row-wise steps after every column is encoded.
+func (p *Pipeline) finish(dst []float64) {
+	if p.UnitNorm {
+		unitNorm(dst)
+	}
+}
+
+// unitNorm divides v by its Euclidean norm, leaving a zero vector as it is.
+// The norm is taken of v/max|v_i|, as in the reference BLAS nrm2, so that
+// squaring neither overflows nor underflows, and each element is divided
+// in two steps, (v_i/big)/√s, neither of which can overflow.
+func unitNorm(v []float64) {
+	var big float64
+	for _, x := range v {
+		big = max(big, math.Abs(x))
+	}
+	if big == 0 {
+		return
+	}
+	var s float64
+	for _, x := range v {
+		y := x / big
+		s += y * y
+	}
+	r := math.Sqrt(s)
+	for i, x := range v {
+		v[i] = x / big / r
+	}
+}

@@ -1,0 +1,109 @@
+// Package score tallies a classifier's predictions against the truth:
+// accuracy, per-class precision, recall and F1, and the confusion matrix.
+package score
+
+import (
+	"fmt"
+	"io"
+	"strings"
+)
+
+// Confusion counts predictions: Count[i][j] rows of true class i were
+// predicted as class j.
+type Confusion struct {
+	Classes []string
+	Count   [][]int
+}
+
+// New returns an empty tally over the named classes.
+func New(classes []string) *Confusion {
+	c := &Confusion{Classes: classes, Count: make([][]int, len(classes))}
+	for i := range c.Count {
+		c.Count[i] = make([]int, len(classes))
+	}
+	return c
+}
+
+// Add records one prediction.
+func (c *Confusion) Add(truth, predicted int) { c.Count[truth][predicted]++ }
+
+// Total is the number of predictions recorded.
+func (c *Confusion) Total() int {
+	n := 0
+	for _, row := range c.Count {
+		for _, v := range row {
+			n += v
+		}
+	}
+	return n
+}
+
+// Accuracy is the fraction of predictions that were right; NaN with none.
+func (c *Confusion) Accuracy() float64 {
+	right := 0
+	for i := range c.Count {
+		right += c.Count[i][i]
+	}
+	return float64(right) / float64(c.Total())
+}
+
+// Class holds one class's figures. Precision is NaN for a class never
+// predicted, Recall for a class never present, F1 when either is.
+type Class struct {
+	Name                  string
+	Support               int // rows of this class
+	Precision, Recall, F1 float64
+}
+
+// PerClass returns every class's precision, recall and F1 (common
+// practice, no source: precision = TP/(TP+FP), recall = TP/(TP+FN),
+// F1 their harmonic mean).
+func (c *Confusion) PerClass() []Class {
+	out := make([]Class, len(c.Classes))
+	for k := range c.Classes {
+		tp, pred, sup := c.Count[k][k], 0, 0
+		for i := range c.Count {
+			pred += c.Count[i][k]
+			sup += c.Count[k][i]
+		}
+		p := float64(tp) / float64(pred)
+		r := float64(tp) / float64(sup)
+		out[k] = Class{Name: c.Classes[k], Support: sup, Precision: p, Recall: r, F1: 2 * p * r / (p + r)}
+	}
+	return out
+}
+
+// Write prints the figures and the confusion matrix as aligned text.
+func (c *Confusion) Write(w io.Writer) error {
+	width := len("class")
+	for _, n := range c.Classes {
+		width = max(width, len(n))
+	}
+	var b strings.Builder
+	fmt.Fprintf(&b, "accuracy %.4f on %d rows\n\n", c.Accuracy(), c.Total())
+	fmt.Fprintf(&b, "%-*s  %9s  %9s  %9s  %7s\n", width, "class", "precision", "recall", "F1", "rows")
+	for _, k := range c.PerClass() {
+		fmt.Fprintf(&b, "%-*s  %9.4f  %9.4f  %9.4f  %7d\n", width, k.Name, k.Precision, k.Recall, k.F1, k.Support)
+	}
+	fmt.Fprintf(&b, "\nconfusion (rows: true class, columns: predicted)\n%-*s", width, "")
+	for j := range c.Classes {
+		fmt.Fprintf(&b, "  %7s", abbreviate(c.Classes[j], 7))
+	}
+	b.WriteByte('\n')
+	for i, row := range c.Count {
+		fmt.Fprintf(&b, "%-*s", width, c.Classes[i])
+		for _, v := range row {
+			fmt.Fprintf(&b, "  %7d", v)
+		}
+		b.WriteByte('\n')
+	}
+	_, err := io.WriteString(w, b.String())
+	return err
+}
+
+func abbreviate(s string, n int) string {
+	if len(s) <= n {
+		return s
+	}
+	return s[:n-1] + "…"
+}

@@ -1,0 +1,40 @@
+package score
+
+import (
+	"math"
+	"strings"
+	"testing"
+)
+
+// TestWorkedExample checks the figures on a confusion matrix worked by hand
+// (common practice, no source, for the definitions):
+//
+//	        pred a  pred b
+//	true a     3       1      precision a = 3/5, recall a = 3/4
+//	true b     2       4      precision b = 4/5, recall b = 4/6
+func TestWorkedExample(t *testing.T) {
+	c := New([]string{"a", "b"})
+	for _, p := range [][2]int{{0, 0}, {0, 0}, {0, 0}, {0, 1}, {1, 0}, {1, 0}, {1, 1}, {1, 1}, {1, 1}, {1, 1}} {
+		c.Add(p[0], p[1])
+	}
+	if c.Total() != 10 || c.Accuracy() != 0.7 {
+		t.Errorf("total %d accuracy %v, want 10 and 0.7", c.Total(), c.Accuracy())
+	}
+	k := c.PerClass()
+	want := []Class{{"a", 4, 0.6, 0.75, 2 * 0.6 * 0.75 / 1.35}, {"b", 6, 0.8, 4.0 / 6, 2 * 0.8 * (4.0 / 6) / (0.8 + 4.0/6)}}
+	for i := range want {
+		if k[i].Name != want[i].Name || k[i].Support != want[i].Support || math.Abs(k[i].Precision-want[i].Precision) > 1e-15 || math.Abs(k[i].Recall-want[i].Recall) > 1e-15 || math.Abs(k[i].F1-want[i].F1) > 1e-15 {
+			t.Errorf("class %d: %+v, want %+v", i, k[i], want[i])
+		}
+	}
+	var b strings.Builder
+	if err := c.Write(&b); err != nil {
+		t.Fatal(err)
+	}
+	if !strings.Contains(b.String(), "accuracy 0.7000 on 10 rows") || !strings.Contains(b.String(), "b            2        4") {
+		t.Errorf("report:\n%s", b.String())
+	}
+	if p := New([]string{"x", "y"}).PerClass(); !math.IsNaN(p[0].Precision) {
+		t.Errorf("precision with no predictions %v, want NaN", p[0].Precision)
+	}
+}
