@@ -5,6 +5,7 @@ package score
 import (
 	"fmt"
 	"io"
+	"math"
 	"strings"
 )
 
@@ -83,7 +84,7 @@ func (c *Confusion) Write(w io.Writer) error {
 	fmt.Fprintf(&b, "accuracy %.4f on %d rows\n\n", c.Accuracy(), c.Total())
 	fmt.Fprintf(&b, "%-*s  %9s  %9s  %9s  %7s\n", width, "class", "precision", "recall", "F1", "rows")
 	for _, k := range c.PerClass() {
-		fmt.Fprintf(&b, "%-*s  %9.4f  %9.4f  %9.4f  %7d\n", width, k.Name, k.Precision, k.Recall, k.F1, k.Support)
+		fmt.Fprintf(&b, "%-*s  %9s  %9s  %9s  %7d\n", width, k.Name, figure(k.Precision), figure(k.Recall), figure(k.F1), k.Support)
 	}
 	fmt.Fprintf(&b, "\nconfusion (rows: true class, columns: predicted)\n%-*s", width, "")
 	for j := range c.Classes {
@@ -106,4 +107,12 @@ func abbreviate(s string, n int) string {
 		return s
 	}
 	return s[:n-1] + "…"
+}
+
+// figure prints a ratio, or "-" where it is undefined (NaN).
+func figure(v float64) string {
+	if math.IsNaN(v) {
+		return "-"
+	}
+	return fmt.Sprintf("%.4f", v)
 }

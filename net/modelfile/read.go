@@ -6,6 +6,7 @@ import (
 	"encoding/binary"
 	"encoding/json"
 	"fmt"
+	"io"
 	"math"
 	"os"
 	"sort"
@@ -283,4 +284,36 @@ func (h *normHeader) options() (normalize.Options, error) {
 		return o, fmt.Errorf("hold %q", h.Hold)
 	}
 	return o, nil
+}
+
+// ElementType reads only the header of the model file at path and returns
+// the element type its weights are stored in, "float32" or "float64", so
+// that a caller can load it without converting.
+func ElementType(path string) (string, error) {
+	f, err := os.Open(path)
+	if err != nil {
+		return "", fmt.Errorf("modelfile: %w", err)
+	}
+	defer f.Close()
+	var prefix [prefixLen]byte
+	if _, err := io.ReadFull(f, prefix[:]); err != nil {
+		return "", &FormatError{File: path, Offset: 0, Err: ErrTruncated}
+	}
+	if string(prefix[:8]) != magic {
+		return "", &FormatError{File: path, Offset: 0, Err: ErrMagic}
+	}
+	hl := int64(binary.LittleEndian.Uint32(prefix[12:]))
+	if hl > maxHeader {
+		return "", &FormatError{File: path, Offset: 12, Err: ErrHeader, What: "header too long"}
+	}
+	var h struct {
+		DType string `json:"dtype"`
+	}
+	if err := json.NewDecoder(io.LimitReader(f, hl)).Decode(&h); err != nil {
+		return "", &FormatError{File: path, Offset: prefixLen, Err: ErrHeader, What: err.Error()}
+	}
+	if h.DType != "float32" && h.DType != "float64" {
+		return "", &FormatError{File: path, Offset: prefixLen, Err: ErrHeader, What: fmt.Sprintf("dtype %q", h.DType)}
+	}
+	return h.DType, nil
 }

@@ -1,0 +1,82 @@
+package main
+
+import (
+	"errors"
+	"fmt"
+
+	"github.com/rhomb/rhomb/data"
+	"github.com/rhomb/rhomb/internal/score"
+	"github.com/rhomb/rhomb/net"
+	"github.com/rhomb/rhomb/net/modelfile"
+)
+
+const checkSummary = `Measure a saved model on labelled rows: accuracy, precision, recall and F1
+for every class, and the confusion matrix. The rows are read and encoded
+exactly as classify reads them; the label column is the one the model was
+trained with unless -label names another.`
+
+const checkExample = `  rhomb check -model pumps.model -data holdout.csv
+  rhomb check -model digits.model -images t10k-images-idx3-ubyte.gz -labels t10k-labels-idx1-ubyte.gz`
+
+func runCheck(e *env, args []string) error {
+	fs := newFlags(e, "check", checkSummary, checkExample)
+	model := fs.String("model", "", "model `file` (required)")
+	in := fs.String("data", "", "labelled CSV `file`; - reads standard input")
+	label := fs.String("label", "", "label column `name` (default: the one the model was trained with)")
+	images := fs.String("images", "", "IDX images `file`, instead of -data")
+	labels := fs.String("labels", "", "IDX labels `file` for -images")
+	if err := parse(fs, args); err != nil {
+		return err
+	}
+	switch {
+	case *model == "":
+		return usageError{errors.New("check: -model names the model file")}
+	case (*in == "") == (*images == ""):
+		return usageError{errors.New("check: give -data FILE.csv or -images and -labels")}
+	case *images != "" && *labels == "":
+		return usageError{errors.New("check: -images needs -labels")}
+	}
+	return withModel(*model,
+		func(m *modelfile.Model[float32]) error { return check(e, m, *in, *label, *images, *labels) },
+		func(m *modelfile.Model[float64]) error { return check(e, m, *in, *label, *images, *labels) })
+}
+
+func check[T net.Float](e *env, m *modelfile.Model[T], in, label, images, labels string) error {
+	conf := score.New(m.Classes)
+	if images != "" {
+		s, err := readIDXSet[T](images, labels)
+		if err != nil {
+			return err
+		}
+		if s.Features != m.Network.In() || s.Outputs != m.Network.Out() {
+			return dataError{fmt.Errorf("%s: %d features and %d classes; the model takes %d and gives %d", images, s.Features, s.Outputs, m.Network.In(), m.Network.Out())}
+		}
+		predictRows(m.Network, s, func(r int, out []T) { conf.Add(s.Class(r), data.ClassOf(out)) })
+		return conf.Write(e.stdout)
+	}
+	if label == "" {
+		label = m.Label
+	}
+	if label == "" {
+		return usageError{errors.New("check: the model does not record its label column; name it with -label")}
+	}
+	index := map[string]int{}
+	for i, c := range m.Classes {
+		index[c] = i
+	}
+	err := forEachRow(e, m, in, label, func(line int, out []T, l string) error {
+		truth, ok := index[l]
+		if !ok {
+			return dataError{&data.ParseError{File: in, Line: line, Field: label, Err: fmt.Errorf("class %q is not one the model knows (%s)", l, joinClasses(m.Classes))}}
+		}
+		conf.Add(truth, data.ClassOf(out))
+		return nil
+	})
+	if err != nil {
+		return err
+	}
+	if conf.Total() == 0 {
+		return dataError{&data.ParseError{File: in, Err: data.ErrEmpty}}
+	}
+	return conf.Write(e.stdout)
+}

@@ -1,0 +1,283 @@
+package main
+
+import (
+	"encoding/json"
+	"flag"
+	"fmt"
+	"math"
+	"strings"
+
+	"github.com/rhomb/rhomb/data"
+	"github.com/rhomb/rhomb/loss"
+	"github.com/rhomb/rhomb/net"
+	"github.com/rhomb/rhomb/normalize"
+	"github.com/rhomb/rhomb/optim"
+)
+
+// config is everything a training run depends on. It is stored in the
+// model file (as its training record) and in checkpoints, from which a run
+// resumes with exactly these settings.
+type config struct {
+	// Data.
+	Data     string            `json:"data,omitempty"`   // CSV file
+	Images   string            `json:"images,omitempty"` // IDX images
+	Labels   string            `json:"labels,omitempty"` // IDX labels
+	Label    string            `json:"label,omitempty"`
+	Kinds    map[string]string `json:"kinds,omitempty"`
+	Skip     []string          `json:"skip,omitempty"`
+	Missing  string            `json:"missing"`
+	Markers  []string          `json:"markers,omitempty"`
+	UnitNorm bool              `json:"unit_norm,omitempty"`
+	NewAsNil bool              `json:"unknown_as_zeros,omitempty"`
+	Holdout  float64           `json:"holdout"`
+	Test     float64           `json:"test"`
+	// Network.
+	Hidden     []int   `json:"hidden"`
+	Activation string  `json:"activation"`
+	NoConstant bool    `json:"no_constant,omitempty"`
+	Init       string  `json:"init"`
+	Rho0       float64 `json:"rho0"`
+	Norm       string  `json:"norm"`
+	Hold       string  `json:"hold"`
+	Plain      bool    `json:"plain_readout,omitempty"`
+	Float      int     `json:"float"`
+	// Training.
+	Loss     string  `json:"loss"`
+	Balance  bool    `json:"balance,omitempty"`
+	LR       float64 `json:"learning_rate"`
+	Schedule string  `json:"schedule"`
+	Batch    int     `json:"batch"`
+	Draw     string  `json:"draw"`
+	Momentum float64 `json:"momentum"`
+	Nesterov bool    `json:"nesterov,omitempty"`
+	Epochs   int     `json:"epochs"`
+	Decay    float64 `json:"weight_decay"`
+	Temp     float64 `json:"temperature"`
+	Target   float64 `json:"target_loss,omitempty"`
+	Seed     uint64  `json:"seed"`
+}
+
+func defaultConfig() config {
+	return config{Missing: "fail", Holdout: 0.2, Hidden: []int{64, 64}, Activation: "relu", Init: "he", Rho0: 0.1,
+		Norm: "global", Hold: "multiplier", Float: 32, Loss: "square", LR: 0.05, Schedule: "constant",
+		Batch: 32, Draw: "shuffled", Epochs: 40, Decay: 1e-3, Seed: 1}
+}
+
+// bind registers the flags that set c.
+func (c *config) bind(fs *flag.FlagSet) {
+	fs.StringVar(&c.Data, "data", c.Data, "CSV `file` with a header row")
+	fs.StringVar(&c.Images, "images", c.Images, "IDX `file` of images (with -labels), instead of -data")
+	fs.StringVar(&c.Labels, "labels", c.Labels, "IDX `file` of labels for -images")
+	fs.StringVar(&c.Label, "label", c.Label, "`name` of the CSV column holding the class")
+	c.Kinds = map[string]string{}
+	fs.Var(mapFlag(c.Kinds), "kind", "force column kinds: `name=numeric|categorical`, comma-separated or repeated")
+	fs.Var((*listFlag)(&c.Skip), "skip", "comma-separated `columns` to leave out")
+	fs.StringVar(&c.Missing, "missing", c.Missing, "what to do with missing cells: `fail|drop|impute` (impute: mean or most frequent of the training rows)")
+	fs.Var((*listFlag)(&c.Markers), "na", "comma-separated cell `values` that mean missing (default \"\",NA,NaN,null)")
+	fs.BoolVar(&c.UnitNorm, "unit-norm", c.UnitNorm, "scale every input row to unit length after encoding")
+	fs.BoolVar(&c.NewAsNil, "unknown-zero", c.NewAsNil, "encode a category unseen in training as all zeros instead of failing")
+	fs.Float64Var(&c.Holdout, "holdout", c.Holdout, "`fraction` of rows held out for validation (stratified)")
+	fs.Float64Var(&c.Test, "test", c.Test, "`fraction` of rows held out for a final test (stratified)")
+	fs.Var((*intsFlag)(&c.Hidden), "hidden", "hidden layer `widths`, comma-separated; none for a linear model")
+	fs.StringVar(&c.Activation, "act", c.Activation, "activation: `relu|smooth:β|poly:degree:lo:hi`")
+	fs.BoolVar(&c.NoConstant, "no-constant", c.NoConstant, "do not append the constant-1 feature that stands in for biases")
+	fs.StringVar(&c.Init, "init", c.Init, "initial weights: `he|lecun` normal")
+	fs.Float64Var(&c.Rho0, "rho0", c.Rho0, "initial `scale` ρ0 = ∏‖W_k‖ (0 keeps the scheme's)")
+	fs.StringVar(&c.Norm, "norm", c.Norm, "weight normalization: `none|layer|global|unit`")
+	fs.StringVar(&c.Hold, "hold", c.Hold, "how directions keep unit norm: `multiplier|projection`")
+	fs.BoolVar(&c.Plain, "plain-readout", c.Plain, "leave the readout layer out of weight normalization")
+	fs.IntVar(&c.Float, "float", c.Float, "arithmetic: `32|64` bits")
+	fs.StringVar(&c.Loss, "loss", c.Loss, "`square|rescaled:K:M|cross-entropy|logistic|exponential`")
+	fs.BoolVar(&c.Balance, "balance", c.Balance, "weight each class inversely to its frequency")
+	fs.Float64Var(&c.LR, "lr", c.LR, "learning `rate` η")
+	fs.StringVar(&c.Schedule, "schedule", c.Schedule, "learning-rate schedule: `constant|step:EPOCHS:FACTOR|cosine:FLOOR`")
+	fs.IntVar(&c.Batch, "batch", c.Batch, "`rows` per step (0: the whole training set)")
+	fs.StringVar(&c.Draw, "draw", c.Draw, "minibatches: `shuffled` epochs or independent draws with replacement")
+	fs.Float64Var(&c.Momentum, "momentum", c.Momentum, "heavy-ball momentum `μ` in [0, 1)")
+	fs.BoolVar(&c.Nesterov, "nesterov", c.Nesterov, "use Nesterov momentum")
+	fs.IntVar(&c.Epochs, "epochs", c.Epochs, "`epochs` to train")
+	fs.Float64Var(&c.Decay, "decay", c.Decay, "weight decay `λ` (on the scales when normalized)")
+	fs.Float64Var(&c.Temp, "temp", c.Temp, "Langevin `temperature` T: noise √(2ηT) per step")
+	fs.Float64Var(&c.Target, "target-loss", c.Target, "stop once an epoch's mean loss is at most this `loss`")
+	fs.Uint64Var(&c.Seed, "seed", c.Seed, "random `seed` for splits, initialization, batches and noise")
+}
+
+func (c *config) check() error {
+	bad := func(format string, args ...any) error { return usageError{fmt.Errorf(format, args...)} }
+	switch {
+	case c.Data == "" && c.Images == "":
+		return bad("train: give -data FILE.csv (with -label) or -images and -labels")
+	case c.Data != "" && c.Images != "":
+		return bad("train: give -data or -images, not both")
+	case c.Data != "" && c.Label == "":
+		return bad("train: -label names the CSV column holding the class")
+	case c.Images != "" && c.Labels == "":
+		return bad("train: -images needs -labels")
+	case c.Missing != "fail" && c.Missing != "drop" && c.Missing != "impute":
+		return bad("train: -missing %q: want fail, drop or impute", c.Missing)
+	case !(c.Holdout >= 0 && c.Test >= 0 && c.Holdout+c.Test < 1):
+		return bad("train: -holdout %v and -test %v must be fractions summing to less than 1", c.Holdout, c.Test)
+	case c.Float != 32 && c.Float != 64:
+		return bad("train: -float %d: want 32 or 64", c.Float)
+	case c.Epochs < 1:
+		return bad("train: -epochs %d: want at least 1", c.Epochs)
+	}
+	for name, k := range c.Kinds {
+		if k != "numeric" && k != "categorical" {
+			return bad("train: -kind %s=%s: want numeric or categorical", name, k)
+		}
+	}
+	return nil
+}
+
+func (c *config) record() json.RawMessage {
+	b, _ := json.Marshal(c)
+	return b
+}
+
+func (c *config) csvOptions() data.CSVOptions {
+	o := data.CSVOptions{Label: c.Label, Ignore: c.Skip, Missing: c.Markers, Kinds: map[string]data.Kind{}}
+	for name, k := range c.Kinds {
+		o.Kinds[name] = data.Numeric
+		if k == "categorical" {
+			o.Kinds[name] = data.Categorical
+		}
+	}
+	switch c.Missing {
+	case "drop":
+		o.OnMissing = data.MissingDrop
+	case "impute":
+		o.OnMissing = data.MissingKeep
+	}
+	return o
+}
+
+// buildNetwork makes the network the settings describe.
+func buildNetwork[T net.Float](c *config, inputs, outputs int) (*net.Network[T], error) {
+	b := net.NewBuilder[T](inputs)
+	if !c.NoConstant {
+		b.ConstantFeature("one")
+	}
+	name, args, err := split(c.Activation)
+	if err != nil {
+		return nil, usageError{fmt.Errorf("train: -act %w", err)}
+	}
+	for i, w := range c.Hidden {
+		id := fmt.Sprint(i + 1)
+		b.Dense("hidden"+id, w)
+		switch {
+		case name == "relu" && len(args) == 0:
+			b.ReLU("relu" + id)
+		case name == "smooth" && len(args) == 1:
+			b.SmoothReLU("smooth"+id, args[0])
+		case name == "poly" && len(args) == 3 && args[0] == math.Trunc(args[0]):
+			b.PolyReLU("poly"+id, int(args[0]), args[1], args[2], net.FitLeastSquares)
+		default:
+			return nil, usageError{fmt.Errorf("train: -act %q: want relu, smooth:β or poly:degree:lo:hi", c.Activation)}
+		}
+	}
+	n, err := b.Readout("readout", outputs).Build()
+	if err != nil {
+		return nil, usageError{fmt.Errorf("train: %w", err)}
+	}
+	scheme := net.HeNormal
+	switch c.Init {
+	case "he":
+	case "lecun":
+		scheme = net.LeCunNormal
+	default:
+		return nil, usageError{fmt.Errorf("train: -init %q: want he or lecun", c.Init)}
+	}
+	if err := n.Init(net.InitSettings{Scheme: scheme, Rho0: c.Rho0, Seed: c.Seed}); err != nil {
+		return nil, usageError{fmt.Errorf("train: -rho0: %w", err)}
+	}
+	return n, nil
+}
+
+// normOptions reports the normalization the settings ask for, nil for none.
+func (c *config) normOptions() (*normalize.Options, error) {
+	o := &normalize.Options{SkipReadout: c.Plain}
+	switch c.Norm {
+	case "none":
+		return nil, nil
+	case "layer":
+	case "global":
+		o.Scale = normalize.Global
+	case "unit":
+		o.PerUnit = true
+	default:
+		return nil, usageError{fmt.Errorf("train: -norm %q: want none, layer, global or unit", c.Norm)}
+	}
+	switch c.Hold {
+	case "multiplier":
+	case "projection":
+		o.Hold = normalize.Projection
+	default:
+		return nil, usageError{fmt.Errorf("train: -hold %q: want multiplier or projection", c.Hold)}
+	}
+	return o, nil
+}
+
+func makeLoss[T net.Float](c *config, outputs int, weights []float64) (loss.Func[T], error) {
+	name, args, err := split(c.Loss)
+	if err != nil {
+		return nil, usageError{fmt.Errorf("train: -loss %w", err)}
+	}
+	var l loss.Func[T]
+	switch {
+	case name == "square" && len(args) == 0:
+		l = loss.Square[T]{}
+	case name == "rescaled" && len(args) == 2:
+		l = loss.Rescaled[T]{K: args[0], M: args[1]}
+	case name == "rescaled" && len(args) == 0:
+		l = loss.Rescaled[T]{}
+	case name == "cross-entropy" && len(args) == 0:
+		if outputs == 1 {
+			return nil, usageError{fmt.Errorf("train: -loss cross-entropy needs one output per class; with two classes use logistic or square")}
+		}
+		l = loss.CrossEntropy[T]{}
+	case (name == "logistic" || name == "exponential") && len(args) == 0:
+		if outputs != 1 {
+			return nil, usageError{fmt.Errorf("train: -loss %s is for two classes; the data has %d", name, outputs)}
+		}
+		if name == "logistic" {
+			l = loss.Logistic[T]{}
+		} else {
+			l = loss.Exponential[T]{}
+		}
+	default:
+		return nil, usageError{fmt.Errorf("train: -loss %q: want square, rescaled:K:M, cross-entropy, logistic or exponential", c.Loss)}
+	}
+	if weights != nil {
+		l = loss.Weighted[T]{Inner: l, Weights: weights}
+	}
+	return l, nil
+}
+
+func (c *config) settings() (optim.Settings, error) {
+	s := optim.Settings{LearningRate: c.LR, BatchSize: c.Batch, Momentum: c.Momentum, Nesterov: c.Nesterov,
+		WeightDecay: c.Decay, Temperature: c.Temp, Epochs: c.Epochs, TargetLoss: c.Target, Seed: c.Seed}
+	switch c.Draw {
+	case "shuffled":
+	case "independent":
+		s.Sampling = optim.Independent
+	default:
+		return s, usageError{fmt.Errorf("train: -draw %q: want shuffled or independent", c.Draw)}
+	}
+	name, args, err := split(c.Schedule)
+	if err != nil {
+		return s, usageError{fmt.Errorf("train: -schedule %w", err)}
+	}
+	switch {
+	case name == "constant" && len(args) == 0:
+	case name == "step" && len(args) == 2 && args[0] >= 1:
+		s.Schedule = optim.StepDecay{Epochs: int(args[0]), By: args[1]}
+	case name == "cosine" && len(args) == 1:
+		s.Schedule = optim.Cosine{Floor: args[0]}
+	default:
+		return s, usageError{fmt.Errorf("train: -schedule %q: want constant, step:EPOCHS:FACTOR or cosine:FLOOR", c.Schedule)}
+	}
+	return s, nil
+}
+
+func joinClasses(c []string) string { return strings.Join(c, ", ") }

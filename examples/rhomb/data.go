@@ -1,0 +1,158 @@
+package main
+
+import (
+	"errors"
+	"fmt"
+	"os"
+	"strconv"
+
+	"github.com/rhomb/rhomb/data"
+	"github.com/rhomb/rhomb/data/prep"
+	"github.com/rhomb/rhomb/net"
+)
+
+// prepared is the data of a training run: the splits, encoded, and what
+// encoded them.
+type prepared[T net.Float] struct {
+	table            *data.Table    // nil for IDX data
+	pipeline         *prep.Pipeline // nil for IDX data
+	classes          []string
+	train, val, test *data.Set[T] // val and test may be nil
+}
+
+// prepare reads the data the settings name, splits it (stratified, seeded)
+// and encodes it with a pipeline fitted on the training rows only.
+func prepare[T net.Float](c *config) (*prepared[T], error) {
+	if c.Images != "" {
+		return prepareIDX[T](c)
+	}
+	f, err := os.Open(c.Data)
+	if err != nil {
+		return nil, dataError{err}
+	}
+	defer f.Close()
+	t, err := data.ReadCSV(f, c.Data, c.csvOptions())
+	if err != nil {
+		return nil, dataError{withHint(err)}
+	}
+	p := &prepared[T]{table: t, classes: t.Classes()}
+	labels, err := data.ClassIndex(t.Labels, p.classes)
+	if err != nil {
+		return nil, dataError{err}
+	}
+	parts, err := splitRows(labels, c)
+	if err != nil {
+		return nil, dataError{err}
+	}
+	p.pipeline, err = prep.Fit(t.Columns, parts[0], prep.Options{
+		Impute: c.Missing == "impute", UnitNorm: c.UnitNorm, UnknownAsZeros: c.NewAsNil, Missing: c.Markers,
+	})
+	if err != nil {
+		return nil, dataError{fmt.Errorf("%s: %w", c.Data, err)}
+	}
+	sets := make([]*data.Set[T], 3)
+	for i, rows := range parts {
+		if rows == nil {
+			continue
+		}
+		if sets[i], err = data.Encode[T](t, rows, p.pipeline, p.classes); err != nil {
+			return nil, dataError{err}
+		}
+	}
+	p.train, p.val, p.test = sets[0], sets[1], sets[2]
+	return p, nil
+}
+
+// splitRows returns the training, validation and test rows; the last two
+// are nil when their fraction is 0.
+func splitRows(labels []int, c *config) ([][]int, error) {
+	fr := []float64{1 - c.Holdout - c.Test}
+	if c.Holdout > 0 {
+		fr = append(fr, c.Holdout)
+	}
+	if c.Test > 0 {
+		fr = append(fr, c.Test)
+	}
+	parts, err := data.Stratified(labels, fr, c.Seed)
+	if err != nil {
+		return nil, err
+	}
+	out := [][]int{parts[0], nil, nil}
+	i := 1
+	if c.Holdout > 0 {
+		out[1] = parts[i]
+		i++
+	}
+	if c.Test > 0 {
+		out[2] = parts[i]
+	}
+	return out, nil
+}
+
+func prepareIDX[T net.Float](c *config) (*prepared[T], error) {
+	all, err := readIDXSet[T](c.Images, c.Labels)
+	if err != nil {
+		return nil, err
+	}
+	p := &prepared[T]{classes: all.Classes}
+	parts, err := splitRows(all.Labels(), c)
+	if err != nil {
+		return nil, dataError{err}
+	}
+	p.train = all.Subset(parts[0])
+	if parts[1] != nil {
+		p.val = all.Subset(parts[1])
+	}
+	if parts[2] != nil {
+		p.test = all.Subset(parts[2])
+	}
+	return p, nil
+}
+
+// readIDXSet reads an images/labels pair, pixels scaled to [0, 1].
+func readIDXSet[T net.Float](images, labels string) (*data.Set[T], error) {
+	img, err := data.ReadIDXFile(images)
+	if err != nil {
+		return nil, dataError{err}
+	}
+	lab, err := data.ReadIDXFile(labels)
+	if err != nil {
+		return nil, dataError{err}
+	}
+	classes := 0
+	for _, l := range lab.Data {
+		classes = max(classes, int(l)+1)
+	}
+	s, err := data.IDXSet[T](img, lab, max(classes, 2), true)
+	if err != nil {
+		return nil, dataError{err}
+	}
+	return s, nil
+}
+
+// classNames names IDX classes by their digit.
+func classNames(n int) []string {
+	s := make([]string, n)
+	for i := range s {
+		s[i] = strconv.Itoa(i)
+	}
+	return s
+}
+
+// withHint adds what to do on the command line to a reader's error, whose
+// own advice names the library's options.
+func withHint(err error) error {
+	hint := ""
+	switch {
+	case errors.Is(err, data.ErrMissing):
+		hint = "on the command line: -missing drop, or -missing impute"
+	case errors.Is(err, data.ErrNoLabel):
+		hint = "on the command line: check the names given to -label, -skip and -kind"
+	case errors.Is(err, data.ErrNotNumber):
+		hint = "on the command line: -kind NAME=categorical if the column holds categories"
+	}
+	if hint == "" {
+		return err
+	}
+	return fmt.Errorf("%w\n  (%s)", err, hint)
+}

@@ -1,0 +1,298 @@
+package main
+
+import (
+	"context"
+	"encoding/json"
+	"errors"
+	"flag"
+	"fmt"
+	"math"
+	"os"
+	"os/signal"
+	"syscall"
+
+	"github.com/rhomb/rhomb/data"
+	"github.com/rhomb/rhomb/internal/score"
+	"github.com/rhomb/rhomb/net"
+	"github.com/rhomb/rhomb/net/modelfile"
+	"github.com/rhomb/rhomb/normalize"
+	"github.com/rhomb/rhomb/optim"
+)
+
+const trainSummary = `Train a bias-free ReLU classifier with weight normalization, weight decay
+and (optionally) Langevin noise, then save it with its preprocessing.
+Rows are split (stratified, seeded) into training, validation and test
+sets; the preprocessing is fitted on the training rows only.`
+
+const trainExample = `  rhomb train -data readings.csv -label condition -missing impute \
+      -hidden 32,32 -epochs 60 -decay 1e-3 -o pumps.model -save-every 10
+  rhomb train -resume pumps.model.ckpt -o pumps.model     # after an interrupt`
+
+// runOptions are the train flags that are not part of the run's settings:
+// they may differ when a run resumes.
+type runOptions struct {
+	out, checkpoint, resume, metrics string
+	every                            int
+	quiet                            bool
+}
+
+func runTrain(e *env, args []string) error {
+	c := defaultConfig()
+	fs := newFlags(e, "train", trainSummary, trainExample)
+	c.bind(fs)
+	var o runOptions
+	fs.StringVar(&o.out, "o", "", "model `file` to write (required)")
+	fs.IntVar(&o.every, "save-every", 0, "write a checkpoint every `N` epochs (one is always written on interrupt)")
+	fs.StringVar(&o.checkpoint, "checkpoint", "", "checkpoint `file` (default: the model file with .ckpt appended)")
+	fs.StringVar(&o.resume, "resume", "", "continue the run saved in this checkpoint `file`, with its settings")
+	fs.StringVar(&o.metrics, "metrics", "", "write diagnostics of every epoch as JSON Lines to this `file`")
+	fs.BoolVar(&o.quiet, "quiet", false, "print only the final summary")
+	if err := parse(fs, args); err != nil {
+		return err
+	}
+	if o.out == "" {
+		return usageError{errors.New("train: -o names the model file to write")}
+	}
+	if o.checkpoint == "" {
+		o.checkpoint = o.out + ".ckpt"
+	}
+	if o.every < 0 {
+		return usageError{fmt.Errorf("train: -save-every %d: want 0 (never) or a number of epochs", o.every)}
+	}
+	if o.resume != "" {
+		// The checkpoint's settings rule; only the run options and the
+		// number of epochs may be given again.
+		epochs := 0
+		var conflict string
+		fs.Visit(func(f *flag.Flag) {
+			switch f.Name {
+			case "o", "save-every", "checkpoint", "resume", "metrics", "quiet":
+			case "epochs":
+				epochs = c.Epochs
+			default:
+				conflict = f.Name
+			}
+		})
+		if conflict != "" {
+			return usageError{fmt.Errorf("train: -%s cannot change when resuming: the run's settings come from %s", conflict, o.resume)}
+		}
+		m, err := modelfile.Load[float64](o.resume)
+		if err != nil {
+			return modelError{err}
+		}
+		if m.Checkpoint == nil {
+			return modelError{fmt.Errorf("%s is a model, not a checkpoint: there is no run to resume", o.resume)}
+		}
+		c = defaultConfig()
+		if err := json.Unmarshal(m.Training, &c); err != nil {
+			return modelError{fmt.Errorf("%s: training record: %w", o.resume, err)}
+		}
+		if epochs > 0 {
+			c.Epochs = epochs
+		}
+	}
+	if err := c.check(); err != nil {
+		return err
+	}
+	if c.Float == 32 {
+		return train[float32](e, &c, &o)
+	}
+	return train[float64](e, &c, &o)
+}
+
+func train[T net.Float](e *env, c *config, o *runOptions) error {
+	p, err := prepare[T](c)
+	if err != nil {
+		return err
+	}
+	var (
+		n       *net.Network[T]
+		wrapped *normalize.Net[T]
+		state   *optim.State
+	)
+	if o.resume != "" {
+		m, err := modelfile.Load[T](o.resume)
+		if err != nil {
+			return modelError{err}
+		}
+		n, wrapped, state = m.Network, m.Normalized, m.Checkpoint
+		if n.In() != p.train.Features || n.Out() != p.train.Outputs {
+			return modelError{fmt.Errorf("%s: the network takes %d features and gives %d outputs, the data has %d and %d", o.resume, n.In(), n.Out(), p.train.Features, p.train.Outputs)}
+		}
+	} else {
+		if n, err = buildNetwork[T](c, p.train.Features, p.train.Outputs); err != nil {
+			return err
+		}
+		no, err := c.normOptions()
+		if err != nil {
+			return err
+		}
+		if no != nil {
+			if wrapped, err = normalize.Wrap(n, *no); err != nil {
+				return usageError{fmt.Errorf("train: %w", err)}
+			}
+		}
+	}
+	var model optim.Model[T] = n
+	if wrapped != nil {
+		model = wrapped
+	}
+	var weights []float64
+	if c.Balance {
+		weights = data.ClassWeights(p.train.Labels(), max(p.train.Outputs, 2))
+	}
+	lf, err := makeLoss[T](c, p.train.Outputs, weights)
+	if err != nil {
+		return err
+	}
+	s, err := c.settings()
+	if err != nil {
+		return err
+	}
+
+	bundle := func(st *optim.State) *modelfile.Model[T] {
+		return &modelfile.Model[T]{Network: n, Normalized: wrapped, Pipeline: p.pipeline, Classes: p.classes,
+			Label: c.Label, Loss: lf.Name(), Training: c.record(), Checkpoint: st}
+	}
+	batch := c.Batch
+	if batch == 0 || batch > p.train.Rows {
+		batch = p.train.Rows
+	}
+	stepsPerEpoch := (p.train.Rows + batch - 1) / batch
+	rep := newReporter(e, o.quiet, stepsPerEpoch*c.Epochs)
+	var jsonl *optim.Hooks
+	if o.metrics != "" {
+		f, err := os.Create(o.metrics)
+		if err != nil {
+			return err
+		}
+		defer f.Close()
+		jsonl = optim.JSONLines(f, 0)
+	}
+	var tr *optim.Trainer[T]
+	var track stepTracker
+	s.Hooks = &optim.Hooks{
+		EpochMargins: true,
+		Step: func(i *optim.StepInfo) error {
+			track.observe(i)
+			rep.step()
+			return nil
+		},
+		Epoch: func(ei *optim.EpochInfo) error {
+			rep.epoch(epochLine{epoch: ei.Epoch + 1, epochs: c.Epochs, loss: ei.Loss,
+				trainAcc: 1 - float64(ei.Full.Negative)/float64(ei.Full.Rows), valAcc: accuracy(model, p.val),
+				rho: ei.Rho, rhoStar: track.rhoStar, minMargin: ei.Full.Min, elapsed: ei.Elapsed})
+			if jsonl != nil {
+				if err := jsonl.Epoch(ei); err != nil {
+					return err
+				}
+			}
+			if o.every > 0 && (ei.Epoch+1)%o.every == 0 {
+				st := tr.State()
+				if err := modelfile.Save(o.checkpoint, bundle(&st)); err != nil {
+					return err
+				}
+			}
+			return nil
+		},
+	}
+	tr, err = optim.NewTrainer[T](model, lf, p.train, s)
+	if err != nil {
+		return usageError{fmt.Errorf("train: %w", err)}
+	}
+	if state != nil {
+		if err := tr.Restore(*state); err != nil {
+			return modelError{fmt.Errorf("%s: %w", o.resume, err)}
+		}
+	}
+	ctx, stop := signal.NotifyContext(context.Background(), os.Interrupt, syscall.SIGTERM)
+	defer stop()
+	res, err := tr.Run(ctx)
+	rep.finish()
+	if res.Status == optim.Canceled {
+		st := tr.State()
+		if serr := modelfile.Save(o.checkpoint, bundle(&st)); serr != nil {
+			return fmt.Errorf("%w; saving the checkpoint failed too: %v", errInterrupted, serr)
+		}
+		return fmt.Errorf("%w after %d steps; checkpoint saved: resume with rhomb train -resume %s -o %s", errInterrupted, res.Steps, o.checkpoint, o.out)
+	}
+	if err != nil {
+		return fmt.Errorf("training failed: %w", err)
+	}
+
+	metrics := map[string]any{"epochs": res.Epochs, "steps": res.Steps, "status": res.Status.String(), "rho": n.Rho()}
+	if !math.IsNaN(res.Loss) {
+		metrics["loss"] = res.Loss
+	}
+	report := func(name string, set *data.Set[T]) *score.Confusion {
+		if set == nil {
+			return nil
+		}
+		conf := confusion(model, set, p.classes)
+		metrics[name+"_accuracy"] = conf.Accuracy()
+		metrics[name+"_rows"] = set.Rows
+		return conf
+	}
+	report("train", p.train)
+	val := report("validation", p.val)
+	test := report("test", p.test)
+	w := e.stdout
+	fmt.Fprintf(w, "trained %d epochs (%d steps, %s)", res.Epochs, res.Steps, res.Status)
+	if o.out != "" {
+		m := bundle(nil)
+		m.Metrics = metrics
+		if err := modelfile.Save(o.out, m); err != nil {
+			return err
+		}
+		fmt.Fprintf(w, "; saved %s", o.out)
+	}
+	fmt.Fprintln(w)
+	fmt.Fprintf(w, "classes: %s\n", joinClasses(p.classes))
+	if p.table != nil && p.table.Dropped > 0 {
+		fmt.Fprintf(w, "rows dropped for missing values: %d\n", p.table.Dropped)
+	}
+	fmt.Fprintf(w, "train accuracy %.4f on %d rows; ρ = %.4g\n", metrics["train_accuracy"], p.train.Rows, n.Rho())
+	for _, r := range []struct {
+		name string
+		c    *score.Confusion
+	}{{"validation", val}, {"test", test}} {
+		if r.c != nil {
+			fmt.Fprintf(w, "\n%s rows:\n", r.name)
+			r.c.Write(w)
+		}
+	}
+	return nil
+}
+
+// predictRows runs the model over a set in chunks and calls f with each
+// row's outputs.
+func predictRows[T net.Float](m optim.Model[T], s *data.Set[T], f func(r int, out []T)) {
+	const chunk = 1024
+	for start := 0; start < s.Rows; start += chunk {
+		rows := min(chunk, s.Rows-start)
+		out := m.Forward(s.X[start*s.Features:(start+rows)*s.Features], rows)
+		for r := range rows {
+			f(start+r, out[r*s.Outputs:(r+1)*s.Outputs])
+		}
+	}
+}
+
+func confusion[T net.Float](m optim.Model[T], s *data.Set[T], classes []string) *score.Confusion {
+	c := score.New(classes)
+	predictRows(m, s, func(r int, out []T) { c.Add(s.Class(r), data.ClassOf(out)) })
+	return c
+}
+
+// accuracy is NaN for a nil set.
+func accuracy[T net.Float](m optim.Model[T], s *data.Set[T]) float64 {
+	if s == nil {
+		return math.NaN()
+	}
+	right := 0
+	predictRows(m, s, func(r int, out []T) {
+		if data.ClassOf(out) == s.Class(r) {
+			right++
+		}
+	})
+	return float64(right) / float64(s.Rows)
+}
