@@ -4,10 +4,10 @@ import (
 	"encoding/csv"
 	"errors"
 	"io"
-	"os"
 	"strconv"
 
 	"github.com/rhomb/rhomb/data"
+	"github.com/rhomb/rhomb/internal/atomicfile"
 	"github.com/rhomb/rhomb/net"
 	"github.com/rhomb/rhomb/net/modelfile"
 )
@@ -33,16 +33,15 @@ func runClassify(e *env, args []string) error {
 		return usageError{errors.New("classify: -model names the model file")}
 	}
 	var w io.Writer = e.stdout
-	var f *os.File
+	var f *atomicfile.File
 	if *out != "-" {
 		// Write beside the target and rename at the end, so a failed run
 		// leaves no half-written output.
 		var err error
-		if f, err = os.CreateTemp(dirOf(*out), ".classify-*"); err != nil {
+		if f, err = atomicfile.Create(*out); err != nil {
 			return err
 		}
-		defer os.Remove(f.Name())
-		defer f.Close()
+		defer f.Abort()
 		w = f
 	}
 	cw := csv.NewWriter(w)
@@ -57,13 +56,7 @@ func runClassify(e *env, args []string) error {
 		return err
 	}
 	if f != nil {
-		if err := f.Sync(); err != nil {
-			return err
-		}
-		if err := f.Close(); err != nil {
-			return err
-		}
-		return os.Rename(f.Name(), *out)
+		return f.Commit()
 	}
 	return nil
 }
@@ -97,13 +90,4 @@ func bits[T net.Float]() int {
 		return 32
 	}
 	return 64
-}
-
-func dirOf(path string) string {
-	for i := len(path) - 1; i >= 0; i-- {
-		if os.IsPathSeparator(path[i]) {
-			return path[:i+1]
-		}
-	}
-	return "."
 }

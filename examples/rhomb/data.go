@@ -149,7 +149,13 @@ func withHint(err error) error {
 	case errors.Is(err, data.ErrNoLabel):
 		hint = "on the command line: check the names given to -label, -skip and -kind"
 	case errors.Is(err, data.ErrNotNumber):
-		hint = "on the command line: -kind NAME=categorical if the column holds categories"
+		hint = "on the command line: -kind COLUMN=categorical if the column holds categories"
+	case errors.Is(err, data.ErrOneClass):
+		hint = "on the command line: check that -label names the column holding the classes"
+	case errors.Is(err, prep.ErrMissing):
+		hint = "the model was trained without imputation: fill the cell, or retrain with -missing impute"
+	case errors.Is(err, prep.ErrUnknownCategory):
+		hint = "retrain with -unknown-zero to encode unseen categories as zeros"
 	}
 	if hint == "" {
 		return err

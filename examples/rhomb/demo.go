@@ -1,6 +1,7 @@
 package main
 
 import (
+	"flag"
 	"fmt"
 	"os"
 	"path/filepath"
@@ -35,6 +36,16 @@ func runDemo(e *env, args []string) error {
 	if err := parse(fs, args); err != nil {
 		return err
 	}
+	var preset string
+	fs.Visit(func(f *flag.Flag) {
+		switch f.Name {
+		case "data", "images", "labels", "label", "skip", "kind", "missing", "na":
+			preset = f.Name
+		}
+	})
+	if preset != "" {
+		return usageError{fmt.Errorf("demo: -%s is preset for the demo data; use rhomb train for your own files", preset)}
+	}
 	// The demo's data goes through exactly the train path, from a
 	// temporary copy of the embedded file.
 	dir, err := os.MkdirTemp("", "rhomb-demo-")
@@ -47,7 +58,9 @@ func runDemo(e *env, args []string) error {
 		return err
 	}
 	keep := o.out != ""
-	o.checkpoint = filepath.Join(dir, "pumps.ckpt")
+	if keep {
+		o.checkpoint = o.out + ".ckpt" // written only if interrupted
+	}
 	if err := c.check(); err != nil {
 		return err
 	}

@@ -128,11 +128,11 @@ func (s *rowStream[T]) next() (x []T, labels []string, lines []int, rows int, er
 				pe.Field = fe.Field
 				for i, name := range s.pipe.Inputs() {
 					if name == fe.Field {
-						pe.Column = s.cols[i] + 1
+						pe.Line, pe.Column = s.r.FieldPos(s.cols[i])
 					}
 				}
 			}
-			return nil, nil, nil, 0, dataError{pe}
+			return nil, nil, nil, 0, dataError{withHint(pe)}
 		}
 		for _, v := range s.feat {
 			s.x = append(s.x, T(v))

@@ -209,6 +209,9 @@ func train[T net.Float](e *env, c *config, o *runOptions) error {
 	defer stop()
 	res, err := tr.Run(ctx)
 	rep.finish()
+	if res.Status == optim.Canceled && o.checkpoint == "" {
+		return fmt.Errorf("%w after %d steps", errInterrupted, res.Steps)
+	}
 	if res.Status == optim.Canceled {
 		st := tr.State()
 		if serr := modelfile.Save(o.checkpoint, bundle(&st)); serr != nil {

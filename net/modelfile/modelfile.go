@@ -8,11 +8,10 @@ import (
 	"fmt"
 	"io"
 	"math"
-	"os"
-	"path/filepath"
 	"time"
 
 	"github.com/rhomb/rhomb/data/prep"
+	"github.com/rhomb/rhomb/internal/atomicfile"
 	"github.com/rhomb/rhomb/internal/version"
 	"github.com/rhomb/rhomb/net"
 	"github.com/rhomb/rhomb/normalize"
@@ -207,38 +206,9 @@ func Save[T net.Float](path string, m *Model[T]) error {
 	return writeAtomic(path, b)
 }
 
-func writeAtomic(path string, b []byte) (err error) {
-	dir := filepath.Dir(path)
-	f, err := os.CreateTemp(dir, "."+filepath.Base(path)+".tmp-*")
-	if err != nil {
+func writeAtomic(path string, b []byte) error {
+	if err := atomicfile.WriteFile(path, b); err != nil {
 		return fmt.Errorf("modelfile: Save: %w", err)
-	}
-	tmp := f.Name()
-	defer func() {
-		if err != nil {
-			f.Close()
-			os.Remove(tmp)
-		}
-	}()
-	if _, err = f.Write(b); err != nil {
-		return fmt.Errorf("modelfile: Save: writing %s: %w", tmp, err)
-	}
-	if err = f.Sync(); err != nil {
-		return fmt.Errorf("modelfile: Save: syncing %s: %w", tmp, err)
-	}
-	if err = f.Close(); err != nil {
-		return fmt.Errorf("modelfile: Save: %w", err)
-	}
-	if err = os.Chmod(tmp, 0o644); err != nil {
-		return fmt.Errorf("modelfile: Save: %w", err)
-	}
-	if err = os.Rename(tmp, path); err != nil {
-		return fmt.Errorf("modelfile: Save: %w", err)
-	}
-	// Sync the directory so the rename itself survives a crash.
-	if d, derr := os.Open(dir); derr == nil {
-		d.Sync()
-		d.Close()
 	}
 	return nil
 }

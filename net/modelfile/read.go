@@ -306,6 +306,9 @@ func ElementType(path string) (string, error) {
 	if hl > maxHeader {
 		return "", &FormatError{File: path, Offset: 12, Err: ErrHeader, What: "header too long"}
 	}
+	if fi, err := f.Stat(); err == nil && fi.Size() < prefixLen+hl+sumLen {
+		return "", &FormatError{File: path, Offset: 12, Err: ErrTruncated, What: fmt.Sprintf("header of %d bytes does not fit in %d bytes", hl, fi.Size())}
+	}
 	var h struct {
 		DType string `json:"dtype"`
 	}
