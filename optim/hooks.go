@@ -139,3 +139,50 @@ func summarize[T float32 | float64](m *Margins, out, target []T, rows, cols int,
 		}
 	}
 }
+
+// Join returns hooks that call each of hs in turn (nil entries and nil
+// fields are skipped); the first error stops the call. The joined hooks
+// compute the whole set's margins as often as the most demanding of hs
+// asks: the smallest positive FullMarginsEvery, and EpochMargins if any
+// sets it.
+func Join(hs ...*Hooks) *Hooks {
+	j := &Hooks{}
+	var steps []func(*StepInfo) error
+	var epochs []func(*EpochInfo) error
+	for _, h := range hs {
+		if h == nil {
+			continue
+		}
+		if h.Step != nil {
+			steps = append(steps, h.Step)
+		}
+		if h.Epoch != nil {
+			epochs = append(epochs, h.Epoch)
+		}
+		if h.FullMarginsEvery > 0 && (j.FullMarginsEvery == 0 || h.FullMarginsEvery < j.FullMarginsEvery) {
+			j.FullMarginsEvery = h.FullMarginsEvery
+		}
+		j.EpochMargins = j.EpochMargins || h.EpochMargins
+	}
+	if len(steps) > 0 {
+		j.Step = func(s *StepInfo) error {
+			for _, f := range steps {
+				if err := f(s); err != nil {
+					return err
+				}
+			}
+			return nil
+		}
+	}
+	if len(epochs) > 0 {
+		j.Epoch = func(e *EpochInfo) error {
+			for _, f := range epochs {
+				if err := f(e); err != nil {
+					return err
+				}
+			}
+			return nil
+		}
+	}
+	return j
+}

@@ -29,6 +29,18 @@ type Model[T net.Float] interface {
 // every update (normalize.Net returns its directions to the sphere).
 type Constrained interface{ Constrain() }
 
+// syncer is implemented by models whose base network's weights are
+// brought up to date lazily (normalize.Net writes W = ρ·V at Forward).
+type syncer interface{ Sync() }
+
+// baseRho returns ρ of the model's current weights.
+func (t *Trainer[T]) baseRho() float64 {
+	if s, ok := t.model.(syncer); ok {
+		s.Sync()
+	}
+	return t.model.Base().Rho()
+}
+
 // directionNormer is implemented by models that hold directions of their
 // own, whose norms the hooks report.
 type directionNormer interface {
@@ -216,7 +228,7 @@ func (t *Trainer[T]) endEpoch() (Status, error) {
 	t.epoch++
 	t.inEpoch, t.epochLoss, t.epochRows = 0, 0, 0
 	if h := t.s.Hooks; h != nil && h.Epoch != nil {
-		t.einfo = EpochInfo{Epoch: t.epoch - 1, Steps: t.step, Loss: t.lastLoss, Rho: t.model.Base().Rho(), Elapsed: time.Since(t.started)}
+		t.einfo = EpochInfo{Epoch: t.epoch - 1, Steps: t.step, Loss: t.lastLoss, Rho: t.baseRho(), Elapsed: time.Since(t.started)}
 		if h.EpochMargins {
 			t.fullMargins()
 			t.einfo.Full = &t.full
@@ -447,7 +459,7 @@ func (t *Trainer[T]) observe(out, y []T, rows int, dataLoss, lr float64) {
 func (t *Trainer[T]) fullMargins() {
 	set := t.set
 	t.full = Margins{}
-	rho := t.model.Base().Rho()
+	rho := t.baseRho()
 	for start := 0; start < set.Rows; start += t.batch {
 		rows := min(t.batch, set.Rows-start)
 		x := set.X[start*set.Features : (start+rows)*set.Features]

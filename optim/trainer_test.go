@@ -349,3 +349,45 @@ func TestJSONLines(t *testing.T) {
 		t.Errorf("%d step and %d epoch records, want 3 and 2", steps, epochs)
 	}
 }
+
+func TestJoin(t *testing.T) {
+	var order []string
+	a := &optim.Hooks{Step: func(*optim.StepInfo) error { order = append(order, "a"); return nil }, FullMarginsEvery: 5}
+	b := &optim.Hooks{Step: func(*optim.StepInfo) error { order = append(order, "b"); return optim.ErrStop },
+		Epoch: func(*optim.EpochInfo) error { return nil }, FullMarginsEvery: 3, EpochMargins: true}
+	j := optim.Join(a, nil, b)
+	if j.FullMarginsEvery != 3 || !j.EpochMargins || j.Epoch == nil {
+		t.Errorf("joined %+v", j)
+	}
+	if err := j.Step(&optim.StepInfo{}); !errors.Is(err, optim.ErrStop) || strings.Join(order, "") != "ab" {
+		t.Errorf("joined step: %v, called %v", err, order)
+	}
+	if optim.Join().Step != nil {
+		t.Error("joining nothing gave a step hook")
+	}
+}
+
+// TestFullMarginsUseCurrentScale: the whole-set margins the trainer reports
+// for a normalized model are those of the weights after the step,
+// f(x; W)/ρ with W = ρ·V as it stands then (the definition in hooks.go).
+func TestFullMarginsUseCurrentScale(t *testing.T) {
+	set := irisBinary(t)
+	w, err := normalize.Wrap(mlp(t, []int{4, 6, 1}, 3, 0.5), normalize.Options{Scale: normalize.Global})
+	if err != nil {
+		t.Fatal(err)
+	}
+	var got optim.Margins
+	var rho float64
+	h := &optim.Hooks{EpochMargins: true, Epoch: func(e *optim.EpochInfo) error { got, rho = *e.Full, e.Rho; return optim.ErrStop }}
+	train(t, w, set, optim.Settings{LearningRate: 0.1, BatchSize: 15, Hooks: h})
+	out := w.Forward(set.X, set.Rows) // syncs W = ρ·V
+	r := w.Base().Rho()
+	mean := 0.0
+	for i := range set.Rows {
+		mean += set.Y[i] * out[i] / r / float64(set.Rows)
+	}
+	// Same sums in a different order: a few ε relative.
+	if math.Abs(rho-r) > 1e-14*r || math.Abs(got.Mean-mean) > 1e-12 {
+		t.Errorf("epoch info ρ %v, margins mean %v; current weights give ρ %v, mean %v", rho, got.Mean, r, mean)
+	}
+}
