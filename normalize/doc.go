@@ -15,6 +15,14 @@
 //     after each step to undo the O(η²) drift of a finite step; or by plain
 //     projection (Projection), an ordinary step followed by V ← V/‖V‖.
 //
+// Start small. The step a direction takes grows with the scale (its
+// gradient is ρ_k·G_k), so a network wrapped at a large ρ — a He-normal
+// initialization of a few layers has ρ of 10 or more — moves its
+// directions as if the learning rate were that much larger, and can kill
+// its hidden units in the first steps. Initialize with a small
+// net.InitSettings.Rho0 (0.1, say) before wrapping, as the theory
+// recommends anyway.
+//
 // Weight decay then acts on the scales, as λρ² (λΣρ_k² per layer): the
 // directions carry Param.Decay = false.
 //
