@@ -60,7 +60,7 @@ type config struct {
 func defaultConfig() config {
 	return config{Missing: "fail", Holdout: 0.2, Hidden: []int{64, 64}, Activation: "relu", Init: "he", Rho0: 0.1,
 		Norm: "global", Hold: "multiplier", Float: 32, Loss: "square", LR: 0.05, Schedule: "constant",
-		Batch: 32, Draw: "shuffled", Epochs: 40, Decay: 1e-3, Seed: 1}
+		Batch: 32, Draw: "shuffled", Epochs: 100, Decay: 1e-3, Seed: 1}
 }
 
 // bind registers the flags that set c.
