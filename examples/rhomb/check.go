@@ -25,6 +25,7 @@ func runCheck(e *env, args []string) error {
 	label := fs.String("label", "", "label column `name` (default: the one the model was trained with)")
 	images := fs.String("images", "", "IDX images `file`, instead of -data")
 	labels := fs.String("labels", "", "IDX labels `file` for -images")
+	skip := fs.Bool("skip-missing", false, "leave out rows with a missing cell (counted) instead of failing, when the model does not impute")
 	if err := parse(fs, args); err != nil {
 		return err
 	}
@@ -37,11 +38,11 @@ func runCheck(e *env, args []string) error {
 		return usageError{errors.New("check: -images needs -labels")}
 	}
 	return withModel(*model,
-		func(m *modelfile.Model[float32]) error { return check(e, m, *in, *label, *images, *labels) },
-		func(m *modelfile.Model[float64]) error { return check(e, m, *in, *label, *images, *labels) })
+		func(m *modelfile.Model[float32]) error { return check(e, m, *in, *label, *images, *labels, *skip) },
+		func(m *modelfile.Model[float64]) error { return check(e, m, *in, *label, *images, *labels, *skip) })
 }
 
-func check[T net.Float](e *env, m *modelfile.Model[T], in, label, images, labels string) error {
+func check[T net.Float](e *env, m *modelfile.Model[T], in, label, images, labels string, skip bool) error {
 	conf := score.New(m.Classes)
 	if images != "" {
 		s, err := readIDXSet[T](images, labels)
@@ -64,7 +65,12 @@ func check[T net.Float](e *env, m *modelfile.Model[T], in, label, images, labels
 	for i, c := range m.Classes {
 		index[c] = i
 	}
-	err := forEachRow(e, m, in, label, func(line int, out []T, l string) error {
+	skipped := 0
+	err := forEachRow(e, m, in, label, skip, func(line int, out []T, l string) error {
+		if out == nil {
+			skipped++
+			return nil
+		}
 		truth, ok := index[l]
 		if !ok {
 			return dataError{&data.ParseError{File: in, Line: line, Field: label, Err: fmt.Errorf("class %q is not one the model knows (%s)", l, joinClasses(m.Classes))}}
@@ -77,6 +83,9 @@ func check[T net.Float](e *env, m *modelfile.Model[T], in, label, images, labels
 	}
 	if conf.Total() == 0 {
 		return dataError{&data.ParseError{File: in, Err: data.ErrEmpty}}
+	}
+	if skipped > 0 {
+		fmt.Fprintf(e.stdout, "rows left out for missing values: %d\n", skipped)
 	}
 	return conf.Write(e.stdout)
 }

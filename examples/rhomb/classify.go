@@ -26,6 +26,7 @@ func runClassify(e *env, args []string) error {
 	model := fs.String("model", "", "model `file` (required)")
 	in := fs.String("data", "-", "CSV `file` to label; - reads standard input")
 	out := fs.String("o", "-", "CSV `file` to write; - writes standard output")
+	blank := fs.Bool("blank-missing", false, "write an empty output row for a row with a missing cell, instead of failing, when the model does not impute")
 	if err := parse(fs, args); err != nil {
 		return err
 	}
@@ -46,8 +47,8 @@ func runClassify(e *env, args []string) error {
 	}
 	cw := csv.NewWriter(w)
 	err := withModel(*model,
-		func(m *modelfile.Model[float32]) error { return classify(e, m, *in, cw) },
-		func(m *modelfile.Model[float64]) error { return classify(e, m, *in, cw) })
+		func(m *modelfile.Model[float32]) error { return classify(e, m, *in, cw, *blank) },
+		func(m *modelfile.Model[float64]) error { return classify(e, m, *in, cw, *blank) })
 	if err != nil {
 		return err
 	}
@@ -61,7 +62,7 @@ func runClassify(e *env, args []string) error {
 	return nil
 }
 
-func classify[T net.Float](e *env, m *modelfile.Model[T], in string, cw *csv.Writer) error {
+func classify[T net.Float](e *env, m *modelfile.Model[T], in string, cw *csv.Writer, blank bool) error {
 	head := []string{"class"}
 	if m.Network.Out() == 1 {
 		head = append(head, "score")
@@ -74,7 +75,11 @@ func classify[T net.Float](e *env, m *modelfile.Model[T], in string, cw *csv.Wri
 		return err
 	}
 	rec := make([]string, len(head))
-	return forEachRow(e, m, in, "", func(line int, out []T, _ string) error {
+	return forEachRow(e, m, in, "", blank, func(line int, out []T, _ string) error {
+		if out == nil {
+			clear(rec)
+			return cw.Write(rec)
+		}
 		rec[0] = m.Classes[data.ClassOf(out)]
 		for j, v := range out {
 			rec[j+1] = strconv.FormatFloat(float64(v), 'g', -1, bits[T]())

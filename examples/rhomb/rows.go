@@ -56,12 +56,16 @@ type rowStream[T net.Float] struct {
 	pipe     *prep.Pipeline
 	cols     []int // column of each pipeline input
 	labelCol int   // -1 when not read
-	fields   []string
-	feat     []float64
-	batch    int
-	x        []T
-	labels   []string
-	lines    []int
+	// skipMissing passes rows with a missing cell through as invalid
+	// instead of failing (the model cannot impute them).
+	skipMissing bool
+	fields      []string
+	feat        []float64
+	batch       int
+	x           []T
+	labels      []string
+	lines       []int
+	valid       []bool
 }
 
 func newRowStream[T net.Float](in io.Reader, source string, pipe *prep.Pipeline, label string, batch int) (*rowStream[T], error) {
@@ -103,9 +107,10 @@ func newRowStream[T net.Float](in io.Reader, source string, pipe *prep.Pipeline,
 }
 
 // next reads up to batch rows and returns their features (rows×Width) and,
-// if asked for, labels; rows == 0 at the end.
-func (s *rowStream[T]) next() (x []T, labels []string, lines []int, rows int, err error) {
-	s.x, s.labels, s.lines = s.x[:0], s.labels[:0], s.lines[:0]
+// if asked for, labels; rows == 0 at the end. valid[r] is false for a row
+// skipped for a missing cell (its features are zero).
+func (s *rowStream[T]) next() (x []T, labels []string, lines []int, valid []bool, rows int, err error) {
+	s.x, s.labels, s.lines, s.valid = s.x[:0], s.labels[:0], s.lines[:0], s.valid[:0]
 	for rows < s.batch {
 		rec, err := s.r.Read()
 		if errors.Is(err, io.EOF) {
@@ -113,15 +118,19 @@ func (s *rowStream[T]) next() (x []T, labels []string, lines []int, rows int, er
 		}
 		line, _ := s.r.FieldPos(0)
 		if err != nil {
-			return nil, nil, nil, 0, dataError{fmt.Errorf("%s: %w", s.source, err)}
+			return nil, nil, nil, nil, 0, dataError{fmt.Errorf("%s: %w", s.source, err)}
 		}
 		for i, c := range s.cols {
 			if c >= len(rec) {
-				return nil, nil, nil, 0, dataError{&data.ParseError{File: s.source, Line: line, Err: fmt.Errorf("%w: %d fields, the model's column %q is field %d", data.ErrRagged, len(rec), s.pipe.Inputs()[i], c+1)}}
+				return nil, nil, nil, nil, 0, dataError{&data.ParseError{File: s.source, Line: line, Err: fmt.Errorf("%w: %d fields, the model's column %q is field %d", data.ErrRagged, len(rec), s.pipe.Inputs()[i], c+1)}}
 			}
 			s.fields[i] = rec[c]
 		}
-		if err := s.pipe.ApplyStrings(s.fields, s.feat); err != nil {
+		ok := true
+		if err := s.pipe.ApplyStrings(s.fields, s.feat); err != nil && s.skipMissing && errors.Is(err, prep.ErrMissing) {
+			ok = false
+			clear(s.feat)
+		} else if err != nil {
 			pe := &data.ParseError{File: s.source, Line: line, Err: err}
 			var fe *prep.FieldError
 			if errors.As(err, &fe) {
@@ -132,26 +141,28 @@ func (s *rowStream[T]) next() (x []T, labels []string, lines []int, rows int, er
 					}
 				}
 			}
-			return nil, nil, nil, 0, dataError{withHint(pe)}
+			return nil, nil, nil, nil, 0, dataError{withHint(pe)}
 		}
 		for _, v := range s.feat {
 			s.x = append(s.x, T(v))
 		}
 		if s.labelCol >= 0 {
 			if s.labelCol >= len(rec) {
-				return nil, nil, nil, 0, dataError{&data.ParseError{File: s.source, Line: line, Err: fmt.Errorf("%w: no label field", data.ErrRagged)}}
+				return nil, nil, nil, nil, 0, dataError{&data.ParseError{File: s.source, Line: line, Err: fmt.Errorf("%w: no label field", data.ErrRagged)}}
 			}
 			s.labels = append(s.labels, strings.TrimSpace(rec[s.labelCol]))
 		}
 		s.lines = append(s.lines, line)
+		s.valid = append(s.valid, ok)
 		rows++
 	}
-	return s.x, s.labels, s.lines, rows, nil
+	return s.x, s.labels, s.lines, s.valid, rows, nil
 }
 
 // forEachRow streams path through the model: f gets each row's outputs
-// and, when label is set, its label.
-func forEachRow[T net.Float](e *env, m *modelfile.Model[T], path, label string, f func(line int, out []T, label string) error) error {
+// and, when label is set, its label. With skipMissing, a row with a
+// missing cell gets out == nil instead of failing the run.
+func forEachRow[T net.Float](e *env, m *modelfile.Model[T], path, label string, skipMissing bool, f func(line int, out []T, label string) error) error {
 	if m.Pipeline == nil {
 		return modelError{errors.New("the model has no preprocessing for CSV rows (it was trained on IDX data): use -images and -labels")}
 	}
@@ -164,10 +175,11 @@ func forEachRow[T net.Float](e *env, m *modelfile.Model[T], path, label string, 
 	if err != nil {
 		return err
 	}
+	s.skipMissing = skipMissing
 	var model optim.Model[T] = m.Network
 	width := m.Network.Out()
 	for {
-		x, labels, lines, rows, err := s.next()
+		x, labels, lines, valid, rows, err := s.next()
 		if err != nil {
 			return err
 		}
@@ -180,7 +192,11 @@ func forEachRow[T net.Float](e *env, m *modelfile.Model[T], path, label string, 
 			if labels != nil {
 				l = labels[r]
 			}
-			if err := f(lines[r], out[r*width:(r+1)*width], l); err != nil {
+			o := out[r*width : (r+1)*width]
+			if !valid[r] {
+				o = nil
+			}
+			if err := f(lines[r], o, l); err != nil {
 				return err
 			}
 		}
