@@ -19,6 +19,11 @@ type NodeSpec struct {
 	Lo     float64 `json:"lo,omitempty"`
 	Hi     float64 `json:"hi,omitempty"`
 	Fit    string  `json:"fit,omitempty"`
+	// Coefficients are a poly-relu's fitted Chebyshev coefficients, in the
+	// basis of t = (2x − Lo − Hi)/(Hi − Lo), stored so that a reader need
+	// not refit (and cannot refit differently). FromSpec refits and
+	// ignores them.
+	Coefficients []float64 `json:"coefficients,omitempty"`
 }
 
 // ErrCustomNode is returned by Spec for a network holding a node type of
@@ -40,6 +45,7 @@ func (n *Network[T]) Spec() ([]NodeSpec, error) {
 			s.Degree = v.Degree()
 			s.Lo, s.Hi = v.Interval()
 			s.Fit = v.Fit().String()
+			s.Coefficients = v.Coefficients()
 		default:
 			return nil, fmt.Errorf("%w: node %q of kind %q", ErrCustomNode, nd.Name(), nd.Kind())
 		}
