@@ -102,11 +102,13 @@ func sensorModel(t *testing.T, dir string, extra ...string) (csvPath, modelPath 
 // The flags each command must document; the flag package prints each as
 // "  -name" at the start of a line.
 var helpFlags = map[string][]string{
-	"train":    {"data", "label", "missing", "skip", "epochs", "o", "resume", "save-every", "checkpoint", "quiet"},
-	"check":    {"model", "data", "label", "images", "labels"},
-	"classify": {"model", "data", "o"},
-	"describe": {"model"},
-	"demo":     {"epochs", "o", "quiet", "metrics"},
+	"train":       {"data", "label", "missing", "skip", "epochs", "o", "resume", "save-every", "checkpoint", "quiet"},
+	"check":       {"model", "data", "label", "images", "labels"},
+	"classify":    {"model", "data", "o"},
+	"describe":    {"model"},
+	"demo":        {"epochs", "o", "quiet", "metrics"},
+	"sweep":       {"data", "label", "rho0", "decay", "lr", "temp", "seed", "shard", "workers", "o", "model", "heatmap"},
+	"sweep-merge": {"in", "o", "model", "heatmap", "top"},
 }
 
 func TestHelpForEveryCommand(t *testing.T) {

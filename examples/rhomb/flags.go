@@ -30,8 +30,7 @@ func newFlags(e *env, name, summary, example string) *flag.FlagSet {
 
 func parse(fs *flag.FlagSet, args []string) error {
 	if err := fs.Parse(args); err != nil {
-		if errors.Is(err, flag.ErrHelp) {
-			fs.Usage()
+		if errors.Is(err, flag.ErrHelp) { // the flag package has shown the usage
 			return errHelp
 		}
 		return usageError{fmt.Errorf("%s: %w (rhomb help %s lists the flags)", fs.Name(), err, fs.Name())}

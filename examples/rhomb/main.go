@@ -59,6 +59,8 @@ func commands() []command {
 		{"classify", "label new rows with a saved model, CSV in, CSV out", runClassify},
 		{"describe", "show what a model file holds", runDescribe},
 		{"demo", "train on the embedded demo data (no files needed)", runDemo},
+		{"sweep", "train a grid of ρ0, λ, learning rate, temperature and seed; rank the runs", runSweep},
+		{"sweep-merge", "combine the results of a sweep's shards into one ranking", runSweepMerge},
 	}
 }
 
@@ -97,7 +99,7 @@ func usage(w io.Writer) {
 	fmt.Fprintln(w, "usage: rhomb COMMAND [flags]")
 	fmt.Fprintln(w)
 	for _, c := range commands() {
-		fmt.Fprintf(w, "  %-9s %s\n", c.name, c.summary)
+		fmt.Fprintf(w, "  %-12s %s\n", c.name, c.summary)
 	}
 	fmt.Fprintln(w)
 	fmt.Fprintln(w, "rhomb help COMMAND shows a command's flags and an example.")

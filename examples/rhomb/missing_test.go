@@ -29,3 +29,14 @@ func TestMissingAtServeTime(t *testing.T) {
 		t.Errorf("classify -blank-missing: want a header, two results and a blank row in the middle:\n%s", r.stdout)
 	}
 }
+
+// TestHelpShownOnce: the flag package shows a command's usage itself on
+// -h; the tool must not show it a second time.
+func TestHelpShownOnce(t *testing.T) {
+	for _, c := range commands() {
+		r := run(t, nil, c.name, "-h")
+		if n := strings.Count(r.stdout, "usage: rhomb "+c.name+" "); n != 1 {
+			t.Errorf("%s -h shows its usage %d times", c.name, n)
+		}
+	}
+}

@@ -1,0 +1,230 @@
+package sweep
+
+import (
+	"errors"
+	"fmt"
+	"image/color"
+	"io"
+	"math"
+	"strconv"
+	"strings"
+	"text/tabwriter"
+
+	"gonum.org/v1/plot"
+	"gonum.org/v1/plot/palette/moreland"
+	"gonum.org/v1/plot/plotter"
+	"gonum.org/v1/plot/text"
+	"gonum.org/v1/plot/vg"
+)
+
+// WriteTable writes the first top results of a ranking (all when top ≤ 0)
+// as an aligned text table, one row per run: rank, point, its values, the
+// validation and training accuracy, the training set's minimum and mean
+// normalized margin, the bound, ρ and the status. A measure that is NaN
+// shows as "-"; a failed run shows its error.
+func WriteTable(w io.Writer, ranked []Result, top int) error {
+	if top <= 0 || top > len(ranked) {
+		top = len(ranked)
+	}
+	tw := tabwriter.NewWriter(w, 0, 0, 2, ' ', tabwriter.AlignRight)
+	fmt.Fprintln(tw, "rank\tpoint\tρ0\tλ\tη\tT\tseed\tvalidation\ttrain\tmin margin\tmean margin\tbound\tρ\t status")
+	for i, r := range ranked[:top] {
+		status := r.Status
+		if r.Failed() {
+			status = "failed: " + firstLine(r.Err, 60)
+		}
+		fmt.Fprintf(tw, "%d\t%d\t%s\t%s\t%s\t%s\t%d\t%s\t%s\t%s\t%s\t%s\t%s\t %s\n", i+1, r.Index,
+			g(r.Rho0), g(r.WeightDecay), g(r.LearningRate), g(r.Temperature), r.Seed,
+			fixed(r.ValAccuracy, 4), fixed(r.TrainAccuracy, 4), sig(r.MarginMin, 4), sig(r.MarginMean, 4), sig(r.Bound, 5), sig(r.Rho, 4), status)
+	}
+	if err := tw.Flush(); err != nil {
+		return err
+	}
+	if top < len(ranked) {
+		_, err := fmt.Fprintf(w, "(%d more runs not shown)\n", len(ranked)-top)
+		return err
+	}
+	return nil
+}
+
+func fixed(v float64, prec int) string {
+	if math.IsNaN(v) {
+		return "-"
+	}
+	return strconv.FormatFloat(v, 'f', prec, 64)
+}
+
+func sig(v float64, prec int) string {
+	if math.IsNaN(v) {
+		return "-"
+	}
+	return strconv.FormatFloat(v, 'g', prec, 64)
+}
+
+func firstLine(s string, n int) string {
+	s, _, _ = strings.Cut(s, "\n")
+	if r := []rune(s); len(r) > n {
+		return string(r[:n-1]) + "…"
+	}
+	return s
+}
+
+// Cells averages a measure over every axis but ρ0 and λ: cells[i][j] is
+// the mean of value(r) over the results r that succeeded, whose value is
+// not NaN, and whose ρ0 is axes.Rho0[i] and λ is axes.WeightDecay[j]
+// (that is, over learning rates, temperatures and seeds). A cell with no
+// such result is NaN. A nil value means validation accuracy.
+func Cells(axes Axes, results []Result, value func(Result) float64) [][]float64 {
+	if value == nil {
+		value = func(r Result) float64 { return r.ValAccuracy }
+	}
+	pos := func(v []float64, x float64) int {
+		for i, y := range v {
+			if y == x {
+				return i
+			}
+		}
+		return -1
+	}
+	sum := make([][]float64, len(axes.Rho0))
+	count := make([][]int, len(axes.Rho0))
+	for i := range sum {
+		sum[i] = make([]float64, len(axes.WeightDecay))
+		count[i] = make([]int, len(axes.WeightDecay))
+	}
+	for _, r := range results {
+		i, j := pos(axes.Rho0, r.Rho0), pos(axes.WeightDecay, r.WeightDecay)
+		v := value(r)
+		if i < 0 || j < 0 || r.Failed() || math.IsNaN(v) {
+			continue
+		}
+		sum[i][j] += v
+		count[i][j]++
+	}
+	for i := range sum {
+		for j := range sum[i] {
+			if count[i][j] == 0 {
+				sum[i][j] = math.NaN()
+			} else {
+				sum[i][j] /= float64(count[i][j])
+			}
+		}
+	}
+	return sum
+}
+
+// HeatMapOptions chooses what a heat map shows. The zero value shows the
+// validation accuracy.
+type HeatMapOptions struct {
+	// Value is the measure to average into each cell (see Cells); nil
+	// means Result.ValAccuracy.
+	Value func(Result) float64
+	// Name names the measure in the title; empty means "validation
+	// accuracy".
+	Name string
+}
+
+// cellGrid is a Cells matrix as plotter.GridXYZ: column c is ρ0 number
+// c, row r is λ number r, placed at integer coordinates so that every
+// cell has the same size whatever the spacing of the values.
+type cellGrid [][]float64
+
+func (g cellGrid) Dims() (c, r int)   { return len(g), len(g[0]) }
+func (g cellGrid) Z(c, r int) float64 { return g[c][r] }
+func (g cellGrid) X(c int) float64    { return float64(c) }
+func (g cellGrid) Y(r int) float64    { return float64(r) }
+
+// HeatMap draws a measure (validation accuracy unless o says otherwise)
+// over ρ0 (across) and λ (up), averaged over the learning rates,
+// temperatures and seeds of each cell (Cells). Every cell is labelled with
+// its value; a cell whose runs all failed is grey and labelled "failed".
+// Colours run from blue (the lowest cell) to red (the highest). Save the
+// plot with its Save method (the file's extension chooses PNG, SVG or
+// PDF), or use SaveHeatMap.
+func HeatMap(axes Axes, results []Result, o HeatMapOptions) (*plot.Plot, error) {
+	if len(axes.Rho0) == 0 || len(axes.WeightDecay) == 0 {
+		return nil, errors.New("sweep: HeatMap: the axes have no ρ0 or no λ")
+	}
+	name := o.Name
+	if name == "" {
+		name = "validation accuracy"
+	}
+	cells := Cells(axes, results, o.Value)
+	lo, hi := math.Inf(1), math.Inf(-1)
+	for _, col := range cells {
+		for _, v := range col {
+			if !math.IsNaN(v) {
+				lo, hi = min(lo, v), max(hi, v)
+			}
+		}
+	}
+	p := plot.New()
+	rest := len(axes.LearningRate) * len(axes.Temperature) * len(axes.Seeds)
+	p.Title.Text = fmt.Sprintf("%s, mean of %d runs per cell\n(over learning rate, temperature, seed; blue low, red high)", name, rest)
+	p.X.Label.Text = "initial scale ρ0 = ∏‖W_k‖ (no unit)"
+	p.Y.Label.Text = "weight decay λ (no unit)"
+	// The cells fill the frame: no axis lines, the values as ticks.
+	p.X.Width, p.Y.Width = 0, 0
+	p.X.Padding, p.Y.Padding = 0, 0
+	p.X.Tick.Marker = ticks(axes.Rho0)
+	p.Y.Tick.Marker = ticks(axes.WeightDecay)
+
+	if math.IsInf(lo, 1) { // every cell failed: grey cells only
+		lo, hi = 0, 1
+	}
+	if lo == hi { // one value: give the palette a range around it
+		lo, hi = lo-0.5, hi+0.5
+	}
+	hm := plotter.NewHeatMap(cellGrid(cells), moreland.SmoothBlueRed().Palette(64))
+	hm.Min, hm.Max = lo, hi
+	hm.NaN = color.Gray{Y: 0xc0}
+	p.Add(hm)
+
+	var xys plotter.XYs
+	var labels []string
+	for c, col := range cells {
+		for r, v := range col {
+			xys = append(xys, plotter.XY{X: float64(c), Y: float64(r)})
+			if math.IsNaN(v) {
+				labels = append(labels, "failed")
+			} else {
+				labels = append(labels, strconv.FormatFloat(v, 'f', 3, 64))
+			}
+		}
+	}
+	lb, err := plotter.NewLabels(plotter.XYLabels{XYs: xys, Labels: labels})
+	if err != nil {
+		return nil, err
+	}
+	for i := range lb.TextStyle {
+		lb.TextStyle[i].XAlign, lb.TextStyle[i].YAlign = text.XCenter, text.YCenter
+		lb.TextStyle[i].Font.Size = vg.Points(11)
+	}
+	p.Add(lb)
+	return p, nil
+}
+
+// ticks labels integer positions 0, 1, … with the axis's values.
+func ticks(values []float64) plot.ConstantTicks {
+	t := make(plot.ConstantTicks, len(values))
+	for i, v := range values {
+		t[i] = plot.Tick{Value: float64(i), Label: g(v)}
+	}
+	return t
+}
+
+// SaveHeatMap draws HeatMap and writes it to path, in the format its
+// extension names (.png, .svg, .pdf, …), sized to the grid: about 1.1
+// inch per cell across and 0.6 inch per cell up, at least 5 × 3.5 inches.
+func SaveHeatMap(path string, axes Axes, results []Result, o HeatMapOptions) error {
+	p, err := HeatMap(axes, results, o)
+	if err != nil {
+		return err
+	}
+	w := max(vg.Length(len(axes.Rho0))*1.1*vg.Inch+1.5*vg.Inch, 5*vg.Inch)
+	h := max(vg.Length(len(axes.WeightDecay))*0.6*vg.Inch+1.2*vg.Inch, 3.5*vg.Inch)
+	if err := p.Save(w, h, path); err != nil {
+		return fmt.Errorf("sweep: heat map: %w", err)
+	}
+	return nil
+}
