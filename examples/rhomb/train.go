@@ -34,6 +34,10 @@ type runOptions struct {
 	out, checkpoint, resume, metrics string
 	every                            int
 	quiet                            bool
+	// report is the -report file; title, source and notes head it
+	// (defaults: from the data file's name; no notes).
+	report, title, source string
+	notes                 []string
 }
 
 func runTrain(e *env, args []string) error {
@@ -46,6 +50,7 @@ func runTrain(e *env, args []string) error {
 	fs.StringVar(&o.checkpoint, "checkpoint", "", "checkpoint `file` (default: the model file with .ckpt appended)")
 	fs.StringVar(&o.resume, "resume", "", "continue the run saved in this checkpoint `file`, with its settings")
 	fs.StringVar(&o.metrics, "metrics", "", "write diagnostics of every epoch as JSON Lines to this `file`")
+	fs.StringVar(&o.report, "report", "", "write a self-contained HTML run report (figures, margins, ρ and ρ*, collapse, bound, cautions) to this `file`")
 	fs.BoolVar(&o.quiet, "quiet", false, "print only the final summary")
 	if err := parse(fs, args); err != nil {
 		return err
@@ -66,7 +71,7 @@ func runTrain(e *env, args []string) error {
 		var conflict string
 		fs.Visit(func(f *flag.Flag) {
 			switch f.Name {
-			case "o", "save-every", "checkpoint", "resume", "metrics", "quiet":
+			case "o", "save-every", "checkpoint", "resume", "metrics", "report", "quiet":
 			case "epochs":
 				epochs = c.Epochs
 			default:
@@ -196,6 +201,13 @@ func train[T net.Float](e *env, c *config, o *runOptions) error {
 			return nil
 		},
 	}
+	var rr *runReport[T]
+	if o.report != "" {
+		if rr, err = newRunReport(c, p, model, lf, o.resume != "", stepsPerEpoch*c.Epochs); err != nil {
+			return fmt.Errorf("report: %w", err)
+		}
+		s.Hooks = optim.Join(s.Hooks, rr.hooks())
+	}
 	tr, err = optim.NewTrainer[T](model, lf, p.train, s)
 	if err != nil {
 		return usageError{fmt.Errorf("train: %w", err)}
@@ -263,6 +275,16 @@ func train[T net.Float](e *env, c *config, o *runOptions) error {
 			fmt.Fprintf(w, "\n%s rows:\n", r.name)
 			r.c.Write(w)
 		}
+	}
+	if rr != nil {
+		title := o.title
+		if title == "" {
+			title = reportTitle(c)
+		}
+		if err := rr.write(o.report, title, o.source, o.notes, c, p, model, n, res, val, test); err != nil {
+			return fmt.Errorf("report: %w", err)
+		}
+		fmt.Fprintf(w, "\nreport written to %s\n", o.report)
 	}
 	return nil
 }
