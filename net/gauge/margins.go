@@ -140,7 +140,9 @@ func Summarize(vals []float64, labels []int, nclass int, rho float64, o MarginOp
 		if len(vals) == 0 {
 			lo, hi = 0, 1
 		}
-		if hi == lo { // all margins equal: one bin of width 1 around them
+		// All margins equal, or so nearly equal that bins of their span
+		// would round to the same edges: one span of width 1 around them.
+		if !(hi-lo > float64(bins)*1e-12*max(1, math.Abs(lo), math.Abs(hi))) {
 			lo, hi = lo-0.5, hi+0.5
 		}
 		edges = UniformEdges(lo, hi, bins)

@@ -165,3 +165,23 @@ func TestHistogramAgainstGonum(t *testing.T) {
 		t.Error("equal edges accepted")
 	}
 }
+
+// TestNearlyEqualMarginsHistogram: margins one ulp apart (a zero-loss fit
+// gives them) still get increasing default edges.
+func TestNearlyEqualMarginsHistogram(t *testing.T) {
+	m := 0.0523493068345801
+	edges := UniformEdges(m, math.Nextafter(m, 1), 20)
+	if _, err := NewHistogram([]float64{m}, edges); err == nil {
+		t.Fatal("collapsed edges accepted; the test no longer exercises the case")
+	}
+	n, err := net.NewBuilder[float64](1).Readout("w", 1).Build()
+	if err != nil {
+		t.Fatal(err)
+	}
+	n.Params()[0].Value[0] = 1
+	x := []float64{1, math.Nextafter(1, 2)}
+	set := &data.Set[float64]{X: x, Y: []float64{1, 1}, Rows: 2, Features: 1, Outputs: 1}
+	if _, err := MarginsOf[float64](n, set, MarginOptions{}); err != nil {
+		t.Errorf("margins one ulp apart: %v", err)
+	}
+}
