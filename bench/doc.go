@@ -32,5 +32,24 @@
 // SGD update); TestSameGradients checks that they compute the same
 // gradients, within a rounding-error bound, so the comparison is fair.
 //
+// Further benchmarks, each named by its parameters:
+//
+//	BenchmarkStepBlas      the step with gonum's BLAS (Sgemm/Dgemm) and loops, float32 and float64
+//	BenchmarkRatio         rhomb and both gonum baselines interleaved in one operation; reports
+//	                       each one's samples/s and rhomb's speed-up ("x-blas", "x-mat")
+//	BenchmarkStepProducts  the eight matrix products of a step alone, rhomb and gonum
+//	BenchmarkProduct       each of those products alone (op=fwd1-128x512x784, ...)
+//	BenchmarkGemmSquare    C = A·Bᵀ on square sizes 64 to 1024, rhomb and gonum
+//	BenchmarkEpochRows     one optim.Trainer epoch at 10k to 60k rows (slow; only with RHOMB_EPOCH_ROWS=1)
+//
+// GFLOP/s counts 2mnk per product, three forward and five backward products
+// per step (the first layer's input gradient is not computed). Run with
+// -cpu 1,2 for GOMAXPROCS 1 against 2. The "/cpu-s" metrics divide by the
+// processor time the process used (all threads) instead of wall-clock
+// time: on a machine shared with other work they show the code's
+// efficiency, while wall-clock figures show the speed-up from a second
+// core. numpy_step.py is the same step in plain numpy, the optimized-BLAS
+// reference, and compare.sh runs it interleaved with the Go benchmarks.
+//
 // Without -bench, go test ./bench/ runs only that check and is quick.
 package bench

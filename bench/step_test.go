@@ -218,19 +218,22 @@ type stepper interface {
 }
 
 // runSteps times b.N steps of s after one warm-up step, which sizes the
-// network's buffers and starts the kernel's workers.
-func runSteps(b *testing.B, s stepper, batch int) {
+// network's buffers and starts the kernel's workers. Besides samples/s it
+// reports the step's matrix-product work (arch.flops) per second.
+func runSteps(b *testing.B, s stepper, a arch) {
 	s.grads()
 	s.update()
 	b.ReportAllocs()
 	b.ResetTimer()
+	t0 := cpuTime()
 	var l float64
 	for range b.N {
 		l = s.grads()
 		s.update()
 	}
 	b.StopTimer()
-	report(b, batch, l)
+	reportFlops(b, a.flops(), cpuTime()-t0)
+	report(b, a.batch, l)
 }
 
 // BenchmarkStep is one SGD step of rhomb, written by hand from the public
@@ -238,10 +241,10 @@ func runSteps(b *testing.B, s stepper, batch int) {
 func BenchmarkStep(b *testing.B) {
 	for _, a := range archs {
 		b.Run(a.String()+"/"+floatName[float32](), func(b *testing.B) {
-			runSteps(b, newStep[float32](b, a, rand.New(rand.NewPCG(1, 2))), a.batch)
+			runSteps(b, newStep[float32](b, a, rand.New(rand.NewPCG(1, 2))), a)
 		})
 		b.Run(a.String()+"/"+floatName[float64](), func(b *testing.B) {
-			runSteps(b, newStep[float64](b, a, rand.New(rand.NewPCG(1, 2))), a.batch)
+			runSteps(b, newStep[float64](b, a, rand.New(rand.NewPCG(1, 2))), a)
 		})
 	}
 }
@@ -252,7 +255,7 @@ func BenchmarkStep(b *testing.B) {
 func BenchmarkStepGonum(b *testing.B) {
 	for _, a := range archs {
 		b.Run(a.String()+"/float=64", func(b *testing.B) {
-			runSteps(b, gonumFrom(newStep[float64](b, a, rand.New(rand.NewPCG(1, 2)))), a.batch)
+			runSteps(b, gonumFrom(newStep[float64](b, a, rand.New(rand.NewPCG(1, 2)))), a)
 		})
 	}
 }

@@ -1,6 +1,10 @@
 package net
 
-import "fmt"
+import (
+	"fmt"
+
+	"github.com/rhomb/rhomb/internal/kern"
+)
 
 // ReLU is the rectifier y = max(0, x), applied elementwise. It is
 // positively homogeneous: ReLU(cx) = c·ReLU(x) for c > 0, which is what
@@ -25,11 +29,11 @@ func (r *ReLU[T]) Connect(in int) (int, error) {
 	return in, nil
 }
 
+// Forward computes y = max(x, 0) with Go's max (NaN stays NaN, −0
+// becomes +0), in vector registers where the processor has them
+// (kern.ReLU).
 func (r *ReLU[T]) Forward(x, y []T, rows int) {
-	x, y = x[:rows*r.width], y[:rows*r.width]
-	for i, v := range x {
-		y[i] = max(v, 0)
-	}
+	kern.ReLU(x[:rows*r.width], y[:rows*r.width])
 }
 
 // Backward passes dy where the input was positive. The derivative at 0 is
@@ -39,12 +43,6 @@ func (r *ReLU[T]) Backward(x, y, dy, dx []T, rows int) {
 	if dx == nil {
 		return
 	}
-	x, dy, dx = x[:rows*r.width], dy[:rows*r.width], dx[:rows*r.width]
-	for i, v := range x {
-		if v > 0 {
-			dx[i] = dy[i]
-		} else {
-			dx[i] = 0
-		}
-	}
+	n := rows * r.width
+	kern.ReLUMask(x[:n], dy[:n], dx[:n])
 }

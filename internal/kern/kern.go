@@ -1,180 +1,525 @@
 // Package kern is the one seam through which every matrix product in rhomb
-// passes. Layers call Gemm and nothing else, so that a faster kernel can
-// replace the body of this package without touching a layer.
+// passes. Layers call Gemm and nothing else, so that the kernel can change
+// without touching a layer.
 //
-// Today the products are computed by gonum's pure-Go BLAS (blas/gonum). Gonum
-// parallelizes large products itself, but it starts goroutines and allocates
-// on every call; rhomb's training step must allocate nothing after warm-up.
-// So Gemm cuts C into tiles small enough that gonum computes each one
-// serially, and spreads the tiles over a fixed pool of workers that live for
-// the whole process.
+// # How a product is computed
 //
-// Determinism: tiles split only the rows and columns of C, never the inner
-// dimension k, and gonum sums each element of C over k in a fixed order. An
-// element's value therefore does not depend on the tiling, on which worker
-// computed it, or on GOMAXPROCS: the same inputs give the same bits.
+// Gemm follows the layout of Goto and van de Geijn ("Anatomy of
+// high-performance matrix multiplication", ACM TOMS 34(3), 2008; from
+// memory): C is cut into tiles; for each tile the inner dimension is cut
+// into blocks of kcBlock steps; for each block, the tile's rows of op(A)
+// and columns of op(B) are copied ("packed") into contiguous panels, mr
+// rows or nr columns wide, laid out in the order a micro-kernel reads them;
+// the micro-kernel then computes an mr×nr block of C in registers. The
+// packed panels of a tile fit the processor's second-level cache
+// (mcMax·kcBlock + kcBlock·ncMax elements, at most 1.5 MiB in float64), the
+// kcBlock×nr panel of op(B) that a micro-kernel sweeps over many blocks of
+// rows stays in the first-level cache.
+//
+// The micro-kernels are chosen once, at start-up, from the processor's
+// features (golang.org/x/sys/cpu): AVX-512 (foundation and DQ), else AVX2
+// with FMA, else the pure-Go kernel. Block shapes (rows × columns of C held
+// in registers): AVX-512 12×32 float32 and 12×16 float64, with 16×16
+// float32 for narrow products such as a 10-class readout; AVX2 6×16 and
+// 6×8 (and a few other shapes that the benchmarks compare). The assembly is written by asmgen.go (float32 and
+// float64 from one template). Packing transposes 8×8 (float32) and 4×4
+// blocks in registers where the operand's layout needs it. Building with
+// -tags noasm, or for another architecture, leaves only the pure-Go code.
+//
+// Large products are spread over a fixed pool of workers that live for the
+// whole process; each worker claims whole tiles. Small products, and every
+// product when GOMAXPROCS is 1, run on the caller's goroutine. After the
+// first call of a given size, Gemm allocates nothing.
+//
+// # Determinism
+//
+// Every element of C is computed by one fixed rule, whatever the tiling,
+// the worker, the micro-kernel or GOMAXPROCS:
+//
+//	for each block b = 0, 1, … of kcBlock consecutive steps of the inner
+//	dimension, in order:
+//	    acc = 0; for l in the block, in order: acc = fma(op(A)[i,l], op(B)[l,j], acc)
+//	    t = T(alpha·acc)
+//	    c = t                       for the first block when beta == 0 (C is not read)
+//	    c = fma(beta, c, t)         for the first block otherwise
+//	    c = c + t (= fma(1, c, t))  for every later block
+//
+// where fma rounds once, in T (float32 products are rounded in float32).
+// The assembly kernels compute exactly this rule with vector FMA
+// instructions, and the pure-Go kernel with math.FMA (float64) or an exact
+// emulation (float32); the tests check every kernel against the rule, bit
+// for bit (GemmReLU then applies Go's max(c, 0) to the result). Tiles split only the rows and columns of C, never the inner
+// dimension. So the same inputs give the same bits on every run, for any
+// GOMAXPROCS, with or without the noasm tag, and on any processor that
+// rounds by IEEE 754 (which every amd64 and arm64 processor does).
+// Two cases leave the rule: alpha == 0 or k == 0 give C = beta·C exactly
+// (A and B are not read), and beta == 0 gives C = 0 there.
 package kern
 
 import (
 	"runtime"
 	"sync"
 	"sync/atomic"
-
-	"gonum.org/v1/gonum/blas"
-	"gonum.org/v1/gonum/blas/gonum"
 )
 
 // Float is the set of element types rhomb computes in.
 type Float interface{ float32 | float64 }
 
-// Tile sizes. Gonum's Dgemm/Sgemm go parallel (and allocate) when C spans
-// four or more of its 64×64 blocks (blas/gonum/gonum.go: blockSize = 64,
-// minParBlock = 4); a 64×192 tile spans three, so gonum runs it serially.
 const (
-	tileRows = 64
-	tileCols = 192
-	// parallelFlops is the size of product below which tiles stay on the
-	// caller's goroutine. 2^18 multiply-adds take tens of microseconds, well
-	// above a goroutine wake-up (about a microsecond); the value is a
-	// judgement, not yet a measurement, and the faster kernels should
-	// measure it.
+	// kcBlock is the length of the inner-dimension blocks. It is part of
+	// the rounding rule above, so it is the same for every kernel; 256
+	// steps keep a 256×nr panel of op(B) in a 32 KiB first-level cache for
+	// the AVX2 kernels (256·8·8 bytes in float64, 256·16·4 in float32).
+	kcBlock = 256
+	// mcMax and ncMax bound a tile's rows and columns, so that its packed
+	// panels fit a second-level cache of 1 MiB or more.
+	mcMax = 192
+	ncMax = 512
+	// parallelFlops is the number of multiply-adds below which a product
+	// stays on the caller's goroutine: 2^18 take about 10 µs on one core
+	// at 25 multiply-adds per nanosecond, well above the cost of waking a
+	// worker (about a microsecond).
 	parallelFlops = 1 << 18
 )
 
+// The micro-kernels in use, chosen once at start-up: the best first (in
+// the lists available64 and available32), and the others of the same
+// instruction set, which a product uses instead when their block shape
+// fits it much better (a narrow C: the readout layer's ten columns). Every
+// kernel rounds every element the same way (the rule above), so the choice
+// changes speed only.
+var (
+	kernel64 = available64()[0]
+	kernel32 = available32()[0]
+	others64 = siblings(available64())
+	others32 = siblings(available32())
+)
+
+// siblings returns the kernels of ks that share the first one's name
+// (instruction set), the first one first.
+func siblings[T Float](ks []microKernel[T]) []microKernel[T] {
+	var s []microKernel[T]
+	for _, k := range ks {
+		if k.name == ks[0].name {
+			s = append(s, k)
+		}
+	}
+	return s
+}
+
+// choose returns the kernel for an m×n product: best, unless a sibling
+// computes less than 3/4 of best's padded area (m and n rounded up to
+// whole blocks).
+func choose[T Float](best microKernel[T], others []microKernel[T], m, n int) microKernel[T] {
+	if m >= 8*best.mr && n >= 8*best.nr {
+		// best pads by at most 1/8 in each direction: (9/8)²·3/4 < 1, so
+		// no sibling can win.
+		return best
+	}
+	area := func(k microKernel[T]) int { return (m + k.mr - 1) / k.mr * k.mr * ((n + k.nr - 1) / k.nr * k.nr) }
+	pick, pa := best, area(best)
+	for _, k := range others {
+		if k.name != best.name {
+			continue
+		}
+		if a := area(k); 4*a < 3*pa {
+			pick, pa = k, a
+		}
+	}
+	return pick
+}
+
 // Gemm computes C = alpha·op(A)·op(B) + beta·C on row-major matrices, where
 // op(A) is m×k (A itself when tA is false, Aᵀ when true), op(B) is k×n and C
-// is m×n. lda, ldb and ldc are the row strides. It panics, as gonum does, on
-// inconsistent sizes.
+// is m×n. lda, ldb and ldc are the row strides. When beta is 0, C is not
+// read (it may hold NaN). It panics, as gonum does, on inconsistent sizes.
+// The package doc states exactly how every element is rounded.
 func Gemm[T Float](tA, tB bool, m, n, k int, alpha T, a []T, lda int, b []T, ldb int, beta T, c []T, ldc int) {
+	gemmFlags(tA, tB, m, n, k, alpha, a, lda, b, ldb, beta, c, ldc, 0)
+}
+
+// GemmReLU is Gemm followed by C = max(C, 0) elementwise (Go's max: a NaN
+// stays NaN, −0 becomes +0), in the same pass over C. It is the forward product of a dense layer followed by a
+// rectifier, without a second sweep over the output.
+func GemmReLU[T Float](tA, tB bool, m, n, k int, alpha T, a []T, lda int, b []T, ldb int, beta T, c []T, ldc int) {
+	gemmFlags(tA, tB, m, n, k, alpha, a, lda, b, ldb, beta, c, ldc, flagReLU)
+}
+
+func gemmFlags[T Float](tA, tB bool, m, n, k int, alpha T, a []T, lda int, b []T, ldb int, beta T, c []T, ldc int, flags uintptr) {
 	checkArgs(tA, tB, m, n, k, a, lda, b, ldb, c, ldc)
 	if m == 0 || n == 0 {
 		return
 	}
+	if alpha == 0 || k == 0 {
+		scale(m, n, beta, c, ldc, flags)
+		return
+	}
 	switch any(alpha).(type) {
 	case float64:
-		gemm(&pool64, tA, tB, m, n, k, any(alpha).(float64), any(a).([]float64), lda, any(b).([]float64), ldb, any(beta).(float64), any(c).([]float64), ldc)
+		gemm(&pool64, choose(kernel64, others64, m, n), tA, tB, m, n, k, any(alpha).(float64), any(a).([]float64), lda, any(b).([]float64), ldb, any(beta).(float64), any(c).([]float64), ldc, flags)
 	case float32:
-		gemm(&pool32, tA, tB, m, n, k, any(alpha).(float32), any(a).([]float32), lda, any(b).([]float32), ldb, any(beta).(float32), any(c).([]float32), ldc)
+		gemm(&pool32, choose(kernel32, others32, m, n), tA, tB, m, n, k, any(alpha).(float32), any(a).([]float32), lda, any(b).([]float32), ldb, any(beta).(float32), any(c).([]float32), ldc, flags)
+	}
+}
+
+// scale sets C = beta·C (C = 0 when beta is 0, without reading C).
+func scale[T Float](m, n int, beta T, c []T, ldc int, flags uintptr) {
+	for i := range m {
+		row := c[i*ldc : i*ldc+n]
+		for j := range row {
+			v := T(0)
+			if beta != 0 {
+				v = beta * row[j]
+			}
+			if flags&flagReLU != 0 {
+				v = max(v, 0)
+			}
+			row[j] = v
+		}
 	}
 }
 
 // job is one product, cut into tiles that workers claim by counter.
 type job[T Float] struct {
-	tA, tB       bool
-	m, n, k      int
-	alpha, beta  T
-	a, b, c      []T
-	lda, ldb     int
-	ldc          int
-	tilesAcross  int
-	tiles        int64
-	next         atomic.Int64
-	wg           sync.WaitGroup
-	concurrently bool
+	k           microKernel[T]
+	tA, tB      bool
+	m, n, kk    int
+	alpha, beta T
+	a, b, c     []T
+	lda, ldb    int
+	ldc         int
+	flags       uintptr
+	tm, tn      int // tile size
+	tilesAcross int
+	tiles       int64
+	next        atomic.Int64
+	wg          sync.WaitGroup
+}
+
+// scratch is one goroutine's packing buffers.
+type scratch[T Float] struct {
+	a, b []T
+	c    [genericMax]T // an edge block of C
+}
+
+func (s *scratch[T]) size(na, nb int) {
+	if cap(s.a) < na {
+		s.a = make([]T, na)
+	}
+	if cap(s.b) < nb {
+		s.b = make([]T, nb)
+	}
+	s.a, s.b = s.a[:na], s.b[:nb]
 }
 
 // pool is a set of long-lived workers for one element type. One product at
 // a time uses it; a second caller running at the same moment (a sweep
-// training several networks, say) computes its product on its own goroutine.
+// training several networks, say) computes its product on its own
+// goroutine, with scratch buffers from spare.
 type pool[T Float] struct {
 	mu      sync.Mutex
-	wake    chan struct{}
+	wake    chan *scratch[T]
 	started int
+	own     scratch[T] // the caller's, while it holds mu
 	j       job[T]
+	spare   sync.Pool
 }
 
 var (
-	pool64 = pool[float64]{wake: make(chan struct{}, 256)}
-	pool32 = pool[float32]{wake: make(chan struct{}, 256)}
+	pool64 = pool[float64]{wake: make(chan *scratch[float64], 256)}
+	pool32 = pool[float32]{wake: make(chan *scratch[float32], 256)}
 )
 
-func gemm[T Float](p *pool[T], tA, tB bool, m, n, k int, alpha T, a []T, lda int, b []T, ldb int, beta T, c []T, ldc int) {
+// plan chooses the tile size for procs goroutines: among tilings with
+// tiles at most mcMax×ncMax (rounded to whole blocks), the one with the
+// least estimated time, counting waves of procs tiles, each costing its
+// padded area plus its packing (16 multiply-adds per packed element is a
+// judgement of the relative cost of a scalar copy and a vector FMA).
+func plan(m, n, mr, nr, procs int) (tm, tn int) {
+	cdiv := func(x, y int) int { return (x + y - 1) / y }
+	up := func(x, y int) int { return cdiv(x, y) * y }
+	m0, n0 := cdiv(m, mcMax), cdiv(n, ncMax)
+	if procs == 1 {
+		// The fewest tiles: every tiling does the same work, and fewer
+		// tiles pack less.
+		return up(cdiv(m, m0), mr), up(cdiv(n, n0), nr)
+	}
+	best := -1
+	for tM := m0; tM < m0+4 && tM <= cdiv(m, mr); tM++ {
+		for tN := n0; tN < n0+4 && tN <= cdiv(n, nr); tN++ {
+			rm, rn := up(cdiv(m, tM), mr), up(cdiv(n, tN), nr)
+			tiles := cdiv(m, rm) * cdiv(n, rn)
+			cost := cdiv(tiles, procs) * (rm*rn + 16*(rm+rn))
+			if best < 0 || cost < best {
+				best, tm, tn = cost, rm, rn
+			}
+		}
+	}
+	return tm, tn
+}
+
+func gemm[T Float](p *pool[T], mk microKernel[T], tA, tB bool, m, n, k int, alpha T, a []T, lda int, b []T, ldb int, beta T, c []T, ldc int, flags uintptr) {
 	procs := runtime.GOMAXPROCS(0)
-	across := (n + tileCols - 1) / tileCols
-	tiles := ((m + tileRows - 1) / tileRows) * across
-	if procs < 2 || tiles < 2 || m*n*k < parallelFlops || !p.mu.TryLock() {
+	if m*n*k < parallelFlops {
+		procs = 1
+	}
+	tm, tn := plan(m, n, mk.mr, mk.nr, procs)
+	across := (n + tn - 1) / tn
+	tiles := ((m + tm - 1) / tm) * across
+	if !p.mu.TryLock() {
+		s, _ := p.spare.Get().(*scratch[T])
+		if s == nil {
+			s = new(scratch[T])
+		}
 		var j job[T]
-		j.set(tA, tB, m, n, k, alpha, a, lda, b, ldb, beta, c, ldc, across, tiles)
-		j.run()
+		j.set(mk, tA, tB, m, n, k, alpha, a, lda, b, ldb, beta, c, ldc, flags, tm, tn, across, tiles)
+		j.run(s)
+		p.spare.Put(s)
 		return
 	}
 	defer p.mu.Unlock()
-	helpers := min(procs-1, tiles-1)
-	for p.started < helpers {
-		go p.work()
-		p.started++
-	}
 	j := &p.j
-	j.set(tA, tB, m, n, k, alpha, a, lda, b, ldb, beta, c, ldc, across, tiles)
-	j.wg.Add(helpers)
-	for range helpers {
-		p.wake <- struct{}{}
+	j.set(mk, tA, tB, m, n, k, alpha, a, lda, b, ldb, beta, c, ldc, flags, tm, tn, across, tiles)
+	helpers := min(procs-1, tiles-1)
+	if helpers > 0 {
+		for p.started < helpers {
+			p.start()
+		}
+		j.wg.Add(helpers)
+		for range helpers {
+			p.wake <- nil
+		}
 	}
-	j.run()
+	j.run(&p.own)
 	j.wg.Wait()
 	// Drop references so the pool does not keep the caller's buffers alive.
 	j.a, j.b, j.c = nil, nil, nil
 }
 
-func (p *pool[T]) work() {
+// start starts one worker. (A method, not a go statement in gemm: Go 1.26
+// fails to compile a go statement with a generic receiver there.)
+func (p *pool[T]) start() {
+	s := new(scratch[T])
+	go p.work(s)
+	p.started++
+}
+
+func (p *pool[T]) work(s *scratch[T]) {
 	for range p.wake {
-		p.j.run()
+		p.j.run(s)
 		p.j.wg.Done()
 	}
 }
 
-func (j *job[T]) set(tA, tB bool, m, n, k int, alpha T, a []T, lda int, b []T, ldb int, beta T, c []T, ldc int, across, tiles int) {
-	j.tA, j.tB, j.m, j.n, j.k = tA, tB, m, n, k
+func (j *job[T]) set(mk microKernel[T], tA, tB bool, m, n, k int, alpha T, a []T, lda int, b []T, ldb int, beta T, c []T, ldc int, flags uintptr, tm, tn, across, tiles int) {
+	j.k = mk
+	j.tA, j.tB, j.m, j.n, j.kk = tA, tB, m, n, k
 	j.alpha, j.beta = alpha, beta
 	j.a, j.b, j.c = a, b, c
 	j.lda, j.ldb, j.ldc = lda, ldb, ldc
+	j.flags = flags
+	j.tm, j.tn = tm, tn
 	j.tilesAcross, j.tiles = across, int64(tiles)
 	j.next.Store(0)
 }
 
 // run claims tiles until none are left.
-func (j *job[T]) run() {
+func (j *job[T]) run(s *scratch[T]) {
 	for {
 		t := j.next.Add(1) - 1
 		if t >= j.tiles {
 			return
 		}
-		i0 := int(t) / j.tilesAcross * tileRows
-		j0 := int(t) % j.tilesAcross * tileCols
-		mi := min(tileRows, j.m-i0)
-		nj := min(tileCols, j.n-j0)
-		var a, b []T
-		if j.tA {
-			a = j.a[i0:]
-		} else {
-			a = j.a[i0*j.lda:]
-		}
-		if j.tB {
-			b = j.b[j0*j.ldb:]
-		} else {
-			b = j.b[j0:]
-		}
-		serial(j.tA, j.tB, mi, nj, j.k, j.alpha, a, j.lda, b, j.ldb, j.beta, j.c[i0*j.ldc+j0:], j.ldc)
+		i0 := int(t) / j.tilesAcross * j.tm
+		j0 := int(t) % j.tilesAcross * j.tn
+		j.tile(s, i0, min(j.tm, j.m-i0), j0, min(j.tn, j.n-j0))
 	}
 }
 
-var impl gonum.Implementation
-
-func trans(t bool) blas.Transpose {
-	if t {
-		return blas.Trans
+// tile computes the rows×cols tile of C at (i0, j0).
+func (j *job[T]) tile(s *scratch[T], i0, rows, j0, cols int) {
+	mr, nr, fn := j.k.mr, j.k.nr, j.k.fn
+	pa, pb := (rows+mr-1)/mr, (cols+nr-1)/nr
+	kc0 := min(kcBlock, j.kk)
+	s.size(pa*mr*kc0, pb*nr*kc0)
+	c := j.c
+	for pc := 0; pc < j.kk; pc += kcBlock {
+		kc := min(kcBlock, j.kk-pc)
+		pack(s.b[:pb*nr*kc], j.b, j.ldb, !j.tB, j0, cols, pc, kc, nr)
+		pack(s.a[:pa*mr*kc], j.a, j.lda, j.tA, i0, rows, pc, kc, mr)
+		beta, flags := j.beta, uintptr(0)
+		if pc > 0 {
+			beta = 1
+		} else if beta == 0 {
+			flags |= flagNoBeta
+		}
+		if pc+kc >= j.kk {
+			flags |= j.flags & flagReLU
+		}
+		for q := range pb {
+			bp := &s.b[q*nr*kc]
+			cj := j0 + q*nr
+			nc := min(nr, cols-q*nr)
+			for p := range pa {
+				ap := &s.a[p*mr*kc]
+				ci := i0 + p*mr
+				nrow := min(mr, rows-p*mr)
+				if nrow == mr && nc == nr {
+					fn(kc, ap, bp, &c[ci*j.ldc+cj], j.ldc, j.alpha, beta, flags)
+					continue
+				}
+				// An edge block: compute it whole in s.c, with the same
+				// kernel (so with the same rounding), and copy out the
+				// part that belongs to C.
+				e := s.c[:mr*nr]
+				if flags&flagNoBeta == 0 {
+					for r := range nrow {
+						copy(e[r*nr:r*nr+nc], c[(ci+r)*j.ldc+cj:])
+					}
+				}
+				fn(kc, ap, bp, &e[0], nr, j.alpha, beta, flags)
+				for r := range nrow {
+					copy(c[(ci+r)*j.ldc+cj:(ci+r)*j.ldc+cj+nc], e[r*nr:])
+				}
+			}
+		}
 	}
-	return blas.NoTrans
 }
 
-// serial hands one tile to gonum; tiles are small enough that gonum does
-// not start goroutines of its own.
-func serial[T Float](tA, tB bool, m, n, k int, alpha T, a []T, lda int, b []T, ldb int, beta T, c []T, ldc int) {
-	switch any(alpha).(type) {
-	case float64:
-		impl.Dgemm(trans(tA), trans(tB), m, n, k, any(alpha).(float64), any(a).([]float64), lda, any(b).([]float64), ldb, any(beta).(float64), any(c).([]float64), ldc)
-	case float32:
-		impl.Sgemm(trans(tA), trans(tB), m, n, k, any(alpha).(float32), any(a).([]float32), lda, any(b).([]float32), ldb, any(beta).(float32), any(c).([]float32), ldc)
+// pack copies a block of a matrix into panels for a micro-kernel: the
+// elements X[i, l] for i in [i0, i0+rows) and l in [pc, pc+kc), where X is
+// x itself (ld its row stride) when trans is false and xᵀ when true,
+// grouped in panels of w consecutive i, each panel stored l-major (w values
+// per step l) and zero-padded to w. With trans false it packs op(A) for
+// A not transposed; op(B) for B not transposed is the same as packing Bᵀ
+// transposed, hence the call with !tB.
+func pack[T Float](dst, x []T, ld int, trans bool, i0, rows, pc, kc, w int) {
+	for p := 0; p*w < rows; p++ {
+		panel := dst[p*w*kc : (p+1)*w*kc]
+		n := min(w, rows-p*w)
+		if trans {
+			// X[i, l] = x[l, i]: each step is a contiguous run of x.
+			base := pc*ld + i0 + p*w
+			if n == w && copyRuns(panel, x[base:], ld, kc, w) {
+				continue
+			}
+			for l := range kc {
+				d := panel[l*w : l*w+w]
+				copy(d[:n], x[base+l*ld:base+l*ld+n])
+				clear(d[n:])
+			}
+			continue
+		}
+		// X[i, l] = x[i, l]: each row of x is contiguous. Square blocks
+		// of tb rows and tb steps are transposed in registers, tb rows at
+		// a time over all kc steps, so that the reads form tb streams
+		// that the hardware prefetches; what is left over (rows or steps
+		// fewer than tb) is copied element by element.
+		if n < w {
+			clear(panel)
+		}
+		done := 0
+		for _, tb := range transposeBlocks[T]() {
+			for ; done+tb <= n; done += tb {
+				off := (i0+p*w+done)*ld + pc
+				l := 0
+				for ; l+tb <= kc; l += tb {
+					transpose(x[off+l:], ld, panel[l*w+done:], w, tb)
+				}
+				for r := range tb {
+					src := x[off+r*ld+l : off+r*ld+kc]
+					for ll, v := range src {
+						panel[(l+ll)*w+done+r] = v
+					}
+				}
+			}
+		}
+		for r := done; r < n; r++ {
+			off := (i0+p*w+r)*ld + pc
+			for l, v := range x[off : off+kc] {
+				panel[l*w+r] = v
+			}
+		}
+	}
+}
+
+// copyRuns copies kc runs of w elements, run l from src[l·ld:], to
+// dst[l·w:], as fixed-size array moves (which the compiler turns into a
+// few vector moves) for the block widths of the kernels; it reports false,
+// copying nothing, for other widths.
+func copyRuns[T Float](dst, src []T, ld, kc, w int) bool {
+	switch w {
+	case 4:
+		for l := range kc {
+			*(*[4]T)(dst[l*4 : l*4+4]) = *(*[4]T)(src[l*ld : l*ld+4])
+		}
+	case 6:
+		for l := range kc {
+			*(*[6]T)(dst[l*6 : l*6+6]) = *(*[6]T)(src[l*ld : l*ld+6])
+		}
+	case 8:
+		for l := range kc {
+			*(*[8]T)(dst[l*8 : l*8+8]) = *(*[8]T)(src[l*ld : l*ld+8])
+		}
+	case 12:
+		for l := range kc {
+			*(*[12]T)(dst[l*12 : l*12+12]) = *(*[12]T)(src[l*ld : l*ld+12])
+		}
+	case 16:
+		for l := range kc {
+			*(*[16]T)(dst[l*16 : l*16+16]) = *(*[16]T)(src[l*ld : l*ld+16])
+		}
+	case 24:
+		for l := range kc {
+			*(*[24]T)(dst[l*24 : l*24+24]) = *(*[24]T)(src[l*ld : l*ld+24])
+		}
+	case 32:
+		for l := range kc {
+			*(*[32]T)(dst[l*32 : l*32+32]) = *(*[32]T)(src[l*ld : l*ld+32])
+		}
+	case 48:
+		for l := range kc {
+			*(*[48]T)(dst[l*48 : l*48+48]) = *(*[48]T)(src[l*ld : l*ld+48])
+		}
+	default:
+		return false
+	}
+	return true
+}
+
+// transposeBlocks lists the sides of the square blocks pack transposes in
+// registers, largest first: 8 and 4 for float32 (256- and 128-bit
+// registers), 4 for float64; none without assembly.
+func transposeBlocks[T Float]() []int {
+	if !useTranspose {
+		return nil
+	}
+	var z T
+	if _, ok := any(z).(float32); ok {
+		return blocks32
+	}
+	return blocks64
+}
+
+var blocks32, blocks64 = []int{8, 4}, []int{4}
+
+// transpose writes the transpose of the tb×tb block at src (row stride
+// lds) to dst (row stride ldd); the slices start at the blocks' first
+// elements.
+func transpose[T Float](src []T, lds int, dst []T, ldd, tb int) {
+	switch s := any(src).(type) {
+	case []float32:
+		d := any(dst).([]float32)
+		_, _ = s[(tb-1)*lds+tb-1], d[(tb-1)*ldd+tb-1] // bounds, checked once
+		if tb == 8 {
+			transpose8x8F32(&s[0], lds, &d[0], ldd)
+		} else {
+			transpose4x4F32(&s[0], lds, &d[0], ldd)
+		}
+	case []float64:
+		d := any(dst).([]float64)
+		_, _ = s[3*lds+3], d[3*ldd+3]
+		transpose4x4F64(&s[0], lds, &d[0], ldd)
 	}
 }
 

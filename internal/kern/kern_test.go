@@ -8,9 +8,6 @@ import (
 	"strings"
 	"sync"
 	"testing"
-
-	"gonum.org/v1/gonum/blas"
-	"gonum.org/v1/gonum/blas/gonum"
 )
 
 // The tests below compare Gemm with a naive triple loop computed in
@@ -55,10 +52,11 @@ var (
 	// cGuard marks C's surroundings; any finite value that no computation
 	// here produces will do.
 	cGuard = 4321.125
-	// sizes holds the values every dimension must take at least once: the
-	// edges of gonum's 64-wide blocks and of Gemm's 64×192 tiles (63/64/65,
-	// 127/128/129, 191/192/193) and small odd sizes that exercise the
-	// remainder loops of the vector kernels.
+	// sizes holds the values every dimension must take at least once: one
+	// below, at and above the micro-kernels' block widths and their
+	// multiples (16, 32, 64, 128, 192 = 16·12), sizes whose remainders
+	// modulo 6, 8, 12, 24 and 48 differ, and small odd sizes that leave
+	// edge blocks and the packing's element-by-element remainders.
 	sizes = []int{1, 2, 3, 7, 15, 16, 17, 31, 33, 64, 65, 127, 129, 191, 193, 200}
 	// alphaBeta pairs cover alpha = 0 (A and B not referenced, C scaled),
 	// beta = 0 (C overwritten, never read), beta = 1, and values that are not
@@ -69,8 +67,8 @@ var (
 // shapes returns a covering set of (m, n, k): two cyclic designs in which
 // every value of sizes appears in each dimension, combined with different
 // partners, plus large products that cross several tiles (and so take the
-// parallel path when GOMAXPROCS > 1), including ones whose last tile row or
-// column is a single element wide (129 = 2·64 + 1, 385 = 2·192 + 1).
+// parallel path when GOMAXPROCS > 1) and whose last block row or column is
+// a single element wide for some kernel (385 = 32·12 + 1 = 16·24 + 1).
 func shapes() [][3]int {
 	var s [][3]int
 	n := len(sizes)
@@ -360,24 +358,6 @@ func TestCheckCanFail(t *testing.T) {
 	}
 }
 
-// gonumSerial calls gonum's Dgemm or Sgemm directly.
-func gonumSerial[T Float](tA, tB bool, m, n, k int, alpha T, a []T, lda int, b []T, ldb int, beta T, c []T, ldc int) {
-	var g gonum.Implementation
-	ta, tb := blas.NoTrans, blas.NoTrans
-	if tA {
-		ta = blas.Trans
-	}
-	if tB {
-		tb = blas.Trans
-	}
-	switch al := any(alpha).(type) {
-	case float64:
-		g.Dgemm(ta, tb, m, n, k, al, any(a).([]float64), lda, any(b).([]float64), ldb, any(beta).(float64), any(c).([]float64), ldc)
-	case float32:
-		g.Sgemm(ta, tb, m, n, k, al, any(a).([]float32), lda, any(b).([]float32), ldb, any(beta).(float32), any(c).([]float32), ldc)
-	}
-}
-
 // started returns how many workers T's pool has started.
 func started[T Float]() int {
 	var z T
@@ -399,15 +379,20 @@ func poolMutex[T Float]() *sync.Mutex {
 
 // takesParallelPath reports whether Gemm, called now without contention,
 // hands tiles to workers (the conditions in gemm).
-func takesParallelPath(m, n, k int) bool {
-	tiles := ((m + tileRows - 1) / tileRows) * ((n + tileCols - 1) / tileCols)
-	return runtime.GOMAXPROCS(0) >= 2 && tiles >= 2 && m*n*k >= parallelFlops
+func takesParallelPath[T Float](m, n, k int) bool {
+	procs := runtime.GOMAXPROCS(0)
+	if procs < 2 || m*n*k < parallelFlops {
+		return false
+	}
+	mk := current[T]()
+	tm, tn := plan(m, n, mk.mr, mk.nr, procs)
+	return ((m+tm-1)/tm)*((n+tn-1)/tn) >= 2
 }
 
 func testDeterministic[T Float](t *testing.T) {
-	// k = 129 > 64: gonum's own parallel code would split the inner
-	// dimension into 64-blocks and round differently; Gemm must not.
-	const m, n, k = 300, 400, 129
+	// k = 300 > kcBlock: two blocks of the inner dimension, so the rule's
+	// block boundary is crossed.
+	const m, n, k = 200, 300, 300
 	rng := rand.New(rand.NewPCG(3, 3))
 	la, lb := draw[T](rng, m*k), draw[T](rng, k*n)
 	for _, tA := range []bool{false, true} {
@@ -417,7 +402,7 @@ func testDeterministic[T Float](t *testing.T) {
 			result := func(procs int) []T {
 				runtime.GOMAXPROCS(procs)
 				copy(pr.c.whole, start)
-				if parallel := takesParallelPath(m, n, k); parallel != (procs >= 2) {
+				if parallel := takesParallelPath[T](m, n, k); parallel != (procs >= 2) {
 					t.Fatalf("GOMAXPROCS=%d: parallel path %v, want %v", procs, parallel, procs >= 2)
 				}
 				pr.run()
@@ -427,32 +412,14 @@ func testDeterministic[T Float](t *testing.T) {
 				return append([]T(nil), pr.c.s...)
 			}
 			one, two := result(1), result(2)
-			// Untiled: every element on its own by gonum's serial kernel,
-			// which is what the package doc says each element's value is.
-			untiled := newStored(m, n, pr.c.ld-n, T(cGuard))
-			copy(untiled.whole, start)
-			for i := range m {
-				for j := range n {
-					// Row i of op(A) and column j of op(B), as in job.run.
-					var a, b []T
-					if tA {
-						a = pr.a.s[i:]
-					} else {
-						a = pr.a.s[i*pr.a.ld:]
-					}
-					if tB {
-						b = pr.b.s[j*pr.b.ld:]
-					} else {
-						b = pr.b.s[j:]
-					}
-					gonumSerial(tA, tB, 1, 1, k, pr.alpha, a, pr.a.ld, b, pr.b.ld, pr.beta, untiled.s[i*untiled.ld+j:], untiled.ld)
-				}
-			}
+			// Untiled: every element on its own by the rule of the
+			// package doc, which is what every element's value must be.
+			untiled := ruleProduct(pr, start[guardLen:guardLen+len(pr.c.s)], 0)
 			diffs := 0
 			for i := range one {
-				if bitsOf(one[i]) != bitsOf(two[i]) || bitsOf(one[i]) != bitsOf(untiled.s[i]) {
+				if bitsOf(one[i]) != bitsOf(two[i]) || bitsOf(one[i]) != bitsOf(untiled[i]) {
 					if diffs++; diffs <= 3 {
-						t.Errorf("%s: element %d: GOMAXPROCS=1 %v, GOMAXPROCS=2 %v, element alone %v", pr.label, i, one[i], two[i], untiled.s[i])
+						t.Errorf("%s: element %d: GOMAXPROCS=1 %v, GOMAXPROCS=2 %v, element alone %v", pr.label, i, one[i], two[i], untiled[i])
 					}
 				}
 			}
@@ -499,7 +466,7 @@ func testAllocs[T Float](t *testing.T) {
 	// The parallel path is measured the way AllocsPerRun measures, from
 	// runtime.MemStats.Mallocs, but with GOMAXPROCS = 2.
 	defer runtime.GOMAXPROCS(runtime.GOMAXPROCS(2))
-	if !takesParallelPath(300, 400, 50) {
+	if !takesParallelPath[T](300, 400, 50) {
 		t.Fatal("300×400×50 does not take the parallel path at GOMAXPROCS=2")
 	}
 	large() // warm-up: starts the workers
@@ -586,7 +553,7 @@ func TestGemmConcurrent(t *testing.T) {
 
 func fallback[T Float](t *testing.T) {
 	const m, n, k = 300, 400, 50
-	if !takesParallelPath(m, n, k) {
+	if !takesParallelPath[T](m, n, k) {
 		t.Fatal("300×400×50 does not take the parallel path at GOMAXPROCS=2")
 	}
 	rng := rand.New(rand.NewPCG(6, 6))

@@ -1,0 +1,117 @@
+//go:build !noasm
+
+package kern
+
+import "golang.org/x/sys/cpu"
+
+//go:generate go run asmgen.go
+
+// The assembly micro-kernels (kernels_amd64.s, written by asmgen.go). Each
+// computes exactly what the pure-Go kernel of kernel.go computes for its
+// block shape (see kernelFunc), with vector fused multiply-adds.
+//
+//go:noescape
+func kernAVX2F64(kc int, a, b, c *float64, ldc int, alpha, beta float64, flags uintptr)
+
+//go:noescape
+func kernAVX2F32(kc int, a, b, c *float32, ldc int, alpha, beta float32, flags uintptr)
+
+//go:noescape
+func kernAVX512F64(kc int, a, b, c *float64, ldc int, alpha, beta float64, flags uintptr)
+
+//go:noescape
+func kernAVX512F32(kc int, a, b, c *float32, ldc int, alpha, beta float32, flags uintptr)
+
+//go:noescape
+func kernAVX512F64x12(kc int, a, b, c *float64, ldc int, alpha, beta float64, flags uintptr)
+
+//go:noescape
+func kernAVX512F32x12(kc int, a, b, c *float32, ldc int, alpha, beta float32, flags uintptr)
+
+//go:noescape
+func kernAVX512F32x16(kc int, a, b, c *float32, ldc int, alpha, beta float32, flags uintptr)
+
+//go:noescape
+func kernAVX2F64x4(kc int, a, b, c *float64, ldc int, alpha, beta float64, flags uintptr)
+
+//go:noescape
+func kernAVX2F32x4(kc int, a, b, c *float32, ldc int, alpha, beta float32, flags uintptr)
+
+// transpose8x8F32 and transpose4x4F64 write the transpose of a square
+// block: dst[l·ldd + r] = src[r·lds + l]. They need AVX (implied by AVX2).
+//
+//go:noescape
+func transpose8x8F32(src *float32, lds int, dst *float32, ldd int)
+
+//go:noescape
+func transpose4x4F32(src *float32, lds int, dst *float32, ldd int)
+
+//go:noescape
+func transpose4x4F64(src *float64, lds int, dst *float64, ldd int)
+
+// useTranspose reports whether pack may use the transposes above, and
+// useVector whether ReLU and ReLUMask may use their vector loops.
+var (
+	useTranspose = hasAVX2()
+	useVector    = hasAVX2()
+)
+
+// The vector loops of elementwise.go, over n elements, n a multiple of
+// the vector width.
+//
+//go:noescape
+func reluF32(x, y *float32, n int)
+
+//go:noescape
+func reluF64(x, y *float64, n int)
+
+//go:noescape
+func maskF32(x, dy, dx *float32, n int)
+
+//go:noescape
+func maskF64(x, dy, dx *float64, n int)
+
+// peakAVX2 and peakAVX512 run n·12 independent vector FMAs on registers
+// only (float64 lanes; the float32 rate is twice the float64 rate): the
+// processor's peak, for the benchmarks.
+//
+//go:noescape
+func peakAVX2(n int)
+
+//go:noescape
+func peakAVX512(n int)
+
+// available lists the kernels this CPU can run, best first; the generic
+// kernel is always last. The operating system must also save the wide
+// registers; x/sys/cpu folds that check (XGETBV) into the flags.
+func available64() []microKernel[float64] {
+	var ks []microKernel[float64]
+	if hasAVX512() {
+		ks = append(ks, microKernel[float64]{name: "avx512", mr: 12, nr: 16, fn: kernAVX512F64x12},
+			microKernel[float64]{name: "avx512", mr: 8, nr: 24, fn: kernAVX512F64})
+	}
+	if hasAVX2() {
+		ks = append(ks, microKernel[float64]{name: "avx2", mr: 6, nr: 8, fn: kernAVX2F64},
+			microKernel[float64]{name: "avx2", mr: 4, nr: 12, fn: kernAVX2F64x4})
+	}
+	return append(ks, generic[float64](4, 8))
+}
+
+func available32() []microKernel[float32] {
+	var ks []microKernel[float32]
+	if hasAVX512() {
+		ks = append(ks, microKernel[float32]{name: "avx512", mr: 12, nr: 32, fn: kernAVX512F32x12},
+			microKernel[float32]{name: "avx512", mr: 8, nr: 48, fn: kernAVX512F32},
+			microKernel[float32]{name: "avx512", mr: 16, nr: 16, fn: kernAVX512F32x16})
+	}
+	if hasAVX2() {
+		ks = append(ks, microKernel[float32]{name: "avx2", mr: 6, nr: 16, fn: kernAVX2F32},
+			microKernel[float32]{name: "avx2", mr: 4, nr: 24, fn: kernAVX2F32x4})
+	}
+	return append(ks, generic[float32](4, 8))
+}
+
+func hasAVX2() bool { return cpu.X86.HasAVX2 && cpu.X86.HasFMA }
+
+// hasAVX512 asks for the foundation and DQ (VXORPD on 512-bit registers).
+func hasAVX512() bool { return cpu.X86.HasAVX512F && cpu.X86.HasAVX512DQ && hasAVX2() }

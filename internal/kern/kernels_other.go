@@ -1,0 +1,28 @@
+//go:build noasm || !amd64
+
+package kern
+
+// Without assembly (the noasm build tag, or another architecture) the only
+// kernels are the pure-Go ones of kernel.go.
+
+func available64() []microKernel[float64] { return []microKernel[float64]{generic[float64](4, 8)} }
+
+func available32() []microKernel[float32] { return []microKernel[float32]{generic[float32](4, 8)} }
+
+// Without assembly, pack transposes element by element; these stand-ins
+// are never called (useTranspose is false) but keep pack one function.
+var (
+	useTranspose = false
+	useVector    = false
+)
+
+func reluF32(x, y *float32, n int)      { panic("kern: no assembly") }
+func reluF64(x, y *float64, n int)      { panic("kern: no assembly") }
+func maskF32(x, dy, dx *float32, n int) { panic("kern: no assembly") }
+func maskF64(x, dy, dx *float64, n int) { panic("kern: no assembly") }
+
+func transpose8x8F32(src *float32, lds int, dst *float32, ldd int) { panic("kern: no assembly") }
+
+func transpose4x4F32(src *float32, lds int, dst *float32, ldd int) { panic("kern: no assembly") }
+
+func transpose4x4F64(src *float64, lds int, dst *float64, ldd int) { panic("kern: no assembly") }

@@ -1,0 +1,328 @@
+package kern
+
+import (
+	"fmt"
+	"math"
+	"math/big"
+	"math/rand/v2"
+	"strings"
+	"testing"
+)
+
+// current returns the micro-kernel Gemm uses for T.
+func current[T Float]() microKernel[T] {
+	switch any(T(0)).(type) {
+	case float32:
+		return any(kernel32).(microKernel[T])
+	}
+	return any(kernel64).(microKernel[T])
+}
+
+// kernelsOf lists every kernel this build and processor can run for T,
+// and the pure-Go kernel at each assembly kernel's block shape.
+func kernelsOf[T Float]() []microKernel[T] {
+	var ks []microKernel[T]
+	switch any(T(0)).(type) {
+	case float32:
+		ks = any(available32()).([]microKernel[T])
+	default:
+		ks = any(available64()).([]microKernel[T])
+	}
+	for _, k := range ks {
+		if k.name != "go" {
+			ks = append(ks, generic[T](k.mr, k.nr))
+		}
+	}
+	return ks
+}
+
+// withKernel runs f with Gemm using mk for T.
+func withKernel[T Float](mk microKernel[T], f func()) {
+	switch v := any(mk).(type) {
+	case microKernel[float32]:
+		old := kernel32
+		kernel32 = v
+		defer func() { kernel32 = old }()
+	case microKernel[float64]:
+		old := kernel64
+		kernel64 = v
+		defer func() { kernel64 = old }()
+	}
+	f()
+}
+
+func kernelName[T Float](mk microKernel[T]) string {
+	return fmt.Sprintf("kernel=%s-%dx%d", mk.name, mk.mr, mk.nr)
+}
+
+// fmaT is fused multiply-add rounded once in T, computed exactly with
+// math/big (the product and sum are exact at 300 bits: float64 operands
+// have 53-bit significands and exponents within ±1100) and rounded to
+// nearest even by big.Float's conversions. It is the test's own
+// implementation, independent of fma32 and of the kernels.
+func fmaT[T Float](x, y, z T) T {
+	bx := new(big.Float).SetPrec(300).SetFloat64(float64(x))
+	by := new(big.Float).SetPrec(300).SetFloat64(float64(y))
+	bz := new(big.Float).SetPrec(300).SetFloat64(float64(z))
+	r := new(big.Float).SetPrec(300).Mul(bx, by)
+	r.Add(r, bz)
+	if r.Sign() == 0 {
+		// Exact zero: IEEE 754 §6.3 gives +0 for a sum of opposite signs
+		// in round-to-nearest, and the sign of the operands when both
+		// are zeros of one sign (from memory).
+		return T(float64(x)*float64(y) + float64(z))
+	}
+	switch any(T(0)).(type) {
+	case float32:
+		f, _ := r.Float32()
+		return T(f)
+	}
+	f, _ := r.Float64()
+	return T(f)
+}
+
+// fastFMA is fused multiply-add rounded once in T: math.FMA for float64
+// (the standard library's, correctly rounded by its documentation) and
+// fma32 for float32 (checked against math/big by TestFma32).
+func fastFMA[T Float](x, y, z T) T {
+	switch v := any(x).(type) {
+	case float32:
+		return T(fma32(v, float32(y), float32(z)))
+	}
+	return T(math.FMA(float64(x), float64(y), float64(z)))
+}
+
+// ruleProduct computes pr's product element by element by the rule in the
+// package doc, with fastFMA, starting from the C buffer c0 (in
+// pr.c.s's layout); it returns the new buffer. flags may hold flagReLU.
+// alpha = 0 is not handled (the rule does not apply).
+func ruleProduct[T Float](pr *problem[T], c0 []T, flags uintptr) []T {
+	c := append([]T(nil), c0...)
+	opA := func(i, l int) T {
+		if pr.tA {
+			return pr.a.s[l*pr.a.ld+i]
+		}
+		return pr.a.s[i*pr.a.ld+l]
+	}
+	opB := func(l, j int) T {
+		if pr.tB {
+			return pr.b.s[j*pr.b.ld+l]
+		}
+		return pr.b.s[l*pr.b.ld+j]
+	}
+	for i := range pr.m {
+		for j := range pr.n {
+			v := c[i*pr.c.ld+j]
+			for b0 := 0; b0 < pr.k; b0 += kcBlock {
+				var acc T
+				for l := b0; l < min(b0+kcBlock, pr.k); l++ {
+					acc = fastFMA(opA(i, l), opB(l, j), acc)
+				}
+				t := T(pr.alpha * acc)
+				switch {
+				case b0 > 0:
+					v = fastFMA(1, v, t)
+				case pr.beta == 0:
+					v = t
+				default:
+					v = fastFMA(pr.beta, v, t)
+				}
+			}
+			if flags&flagReLU != 0 {
+				v = max(v, 0)
+			}
+			c[i*pr.c.ld+j] = v
+		}
+	}
+	return c
+}
+
+// TestFma32 checks the pure-Go float32 fused multiply-add against the
+// exact computation with math/big, on random operands and on cases where
+// rounding the float64 sum to float32 would round twice wrongly: z is a
+// float32 and x·y a tiny amount off a float32 half-way point.
+func TestFma32(t *testing.T) {
+	rng := rand.New(rand.NewPCG(8, 8))
+	check := func(x, y, z float32) {
+		t.Helper()
+		if got, want := fma32(x, y, z), fmaT(x, y, z); math.Float32bits(got) != math.Float32bits(want) {
+			t.Errorf("fma32(%v, %v, %v) = %v, exact rounding %v", x, y, z, got, want)
+		}
+	}
+	for range 20000 {
+		x := float32(rng.NormFloat64())
+		y := float32(rng.NormFloat64())
+		z := float32(rng.NormFloat64() * math.Exp2(float64(rng.IntN(60)-30)))
+		check(x, y, z)
+	}
+	// Half-way cases: z = 1, x·y = 2^-24 (exactly half an ulp of 1) plus
+	// or minus 2^-60, which float64 cannot hold next to 1 (its ulp there
+	// is 2^-52): the float64 sum rounds to the exact tie 1 + 2^-24, and a
+	// naive float32(...) would then round to even, 1, even where the
+	// exact sum is above the tie.
+	check(0x1p-24+0x1p-47, 1+0x1p-13, 1)
+	check(0x1p-24, 1+0x1p-23, 1)
+	check(-(0x1p-24), 1+0x1p-23, 1)
+	check(0x1p-24, 1-0x1p-24, 1)
+	check(3, 0x1p-25*(1+0x1p-23), 1)
+	check(0, 5, -0)
+	check(-0, 5, -0)
+	// A double-rounding case from the construction above, shown to fail
+	// for the naive formula, so the check can tell them apart.
+	// z = 1 + 2^-23 has an odd last bit; x·y = 2^-24 − 2^-70 is just under
+	// half its ulp, so the exact sum rounds down to z, while the float64
+	// sum is the tie z + 2^-24, which float32(...) rounds to even, up.
+	x, y, z := float32(0x1p-24+0x1p-47), float32(1-0x1p-23), float32(1+0x1p-23)
+	check(x, y, z)
+	naive := float32(float64(x)*float64(y) + float64(z))
+	if math.Float32bits(naive) == math.Float32bits(fmaT(x, y, z)) {
+		t.Errorf("naive rounding agrees on the tie case; the case tests nothing")
+	}
+}
+
+// TestKernelsBitExact checks every kernel against the rounding rule of the
+// package doc, bit for bit, computed element by element with math/big:
+// every transposition, several alpha and beta (beta = 0 with NaN in C),
+// with and without the ReLU, on shapes that leave edge blocks in both
+// directions and cross the kcBlock boundary (k = 257, 513).
+func TestKernelsBitExact(t *testing.T) {
+	t.Run("float=64", testBitExact[float64])
+	t.Run("float=32", testBitExact[float32])
+}
+
+func testBitExact[T Float](t *testing.T) {
+	rng := rand.New(rand.NewPCG(9, 9))
+	shapes := [][3]int{{1, 1, 1}, {7, 17, 3}, {17, 49, 257}, {33, 25, 513}, {9, 65, 256}}
+	if testing.Short() || raceOn {
+		shapes = shapes[:3]
+	}
+	for _, mk := range kernelsOf[T]() {
+		withKernel(mk, func() {
+			for si, sh := range shapes {
+				m, n, k := sh[0], sh[1], sh[2]
+				la, lb := draw[T](rng, m*k), draw[T](rng, k*n)
+				pads := [3]int{si % 3, (si + 1) % 3, (si + 2) % 3}
+				for _, tAB := range [4][2]bool{{false, false}, {false, true}, {true, false}, {true, true}} {
+					for _, ab := range [][2]float64{{1, 0}, {-0.75, 1.25}, {1, 1}} {
+						for _, flags := range []uintptr{0, flagReLU} {
+							pr := newProblem[T](rng, tAB[0], tAB[1], m, n, k, la, lb, nil, nil, ab[0], ab[1], pads)
+							want := ruleProduct(pr, pr.c.s, flags)
+							gemmFlags(pr.tA, pr.tB, m, n, k, pr.alpha, pr.a.s, pr.a.ld, pr.b.s, pr.b.ld, pr.beta, pr.c.s, pr.c.ld, flags)
+							bad := 0
+							for i := range want {
+								if bitsOf(want[i]) != bitsOf(pr.c.s[i]) {
+									if bad++; bad <= 3 {
+										t.Errorf("%s %s relu=%v: element %d (row %d, col %d) = %v, rule gives %v", kernelName(mk), pr.label, flags != 0, i, i/pr.c.ld, i%pr.c.ld, pr.c.s[i], want[i])
+									}
+								}
+							}
+							if bad > 3 {
+								t.Errorf("%s %s: %d elements differ", kernelName(mk), pr.label, bad)
+							}
+						}
+					}
+				}
+			}
+		})
+	}
+}
+
+// TestEveryKernelNaive runs the naive-product check of TestGemmNaive (edge
+// shapes, guards, bound from the summation length) with every kernel this
+// machine can run, not only the one Gemm chose.
+func TestEveryKernelNaive(t *testing.T) {
+	if raceOn {
+		t.Skip("arithmetic only, and slow under the race detector; TestKernelsBitExact covers every kernel")
+	}
+	// The pure-Go kernel at the assembly kernels' shapes is left to
+	// TestKernelsBitExact: available lists what Gemm can choose.
+	for _, mk := range available64()[1:] {
+		t.Run("float=64/"+kernelName(mk), func(t *testing.T) { withKernel(mk, func() { testAgainstNaive[float64](t) }) })
+	}
+	for _, mk := range available32()[1:] {
+		t.Run("float=32/"+kernelName(mk), func(t *testing.T) { withKernel(mk, func() { testAgainstNaive[float32](t) }) })
+	}
+}
+
+// TestGemmReLU checks the fused rectifier against Gemm followed by Go's
+// max(c, 0), with guards; alpha = 0 takes the scaling path.
+func TestGemmReLU(t *testing.T) {
+	rng := rand.New(rand.NewPCG(10, 10))
+	for _, sh := range [][3]int{{33, 65, 17}, {128, 100, 300}} {
+		m, n, k := sh[0], sh[1], sh[2]
+		la, lb := draw[float64](rng, m*k), draw[float64](rng, k*n)
+		for _, ab := range [][2]float64{{1, 0}, {0, -1}, {0.5, 1}} {
+			pr := newProblem[float64](rng, false, true, m, n, k, la, lb, nil, nil, ab[0], ab[1], [3]int{1, 2, 3})
+			plain := newProblem[float64](rng, false, true, m, n, k, la, lb, nil, nil, ab[0], ab[1], [3]int{1, 2, 3})
+			copy(plain.c.whole, pr.c.whole)
+			GemmReLU(pr.tA, pr.tB, m, n, k, pr.alpha, pr.a.s, pr.a.ld, pr.b.s, pr.b.ld, pr.beta, pr.c.s, pr.c.ld)
+			plain.run()
+			var errs []string
+			negatives := 0
+			for p, v := range plain.c.whole {
+				w := v
+				if plain.c.element(p) {
+					w = max(v, 0)
+					if v < 0 {
+						negatives++
+					}
+				}
+				if bitsOf(pr.c.whole[p]) != bitsOf(w) && len(errs) < 3 {
+					errs = append(errs, fmt.Sprintf("buffer element %d: %v, want %v", p, pr.c.whole[p], w))
+				}
+			}
+			if len(errs) > 0 {
+				t.Errorf("%s:\n\t%s", pr.label, strings.Join(errs, "\n\t"))
+			}
+			if negatives == 0 {
+				t.Errorf("%s: no negative result; the case tests nothing", pr.label)
+			}
+		}
+	}
+}
+
+// TestReLU checks ReLU and ReLUMask against their scalar definitions (Go's
+// max, and x > 0 ? dy : 0), bit for bit, on every length from 0 to 40
+// (the vector loops take 8 or 4 elements at a time, the rest is scalar),
+// with NaN, ±0 and ±Inf among the inputs and guards after the outputs.
+func TestReLU(t *testing.T) {
+	t.Run("float=64", testReLU[float64])
+	t.Run("float=32", testReLU[float32])
+}
+
+func testReLU[T Float](t *testing.T) {
+	rng := rand.New(rand.NewPCG(11, 11))
+	special := []float64{math.NaN(), 0, math.Copysign(0, -1), math.Inf(1), math.Inf(-1)}
+	for n := range 41 {
+		x, dy := make([]T, n), make([]T, n)
+		for i := range x {
+			x[i], dy[i] = T(rng.NormFloat64()), T(rng.NormFloat64())
+			if rng.IntN(4) == 0 {
+				x[i] = T(special[rng.IntN(len(special))])
+			}
+		}
+		y := make([]T, n+guardLen)
+		dx := make([]T, n+guardLen)
+		for i := range y {
+			y[i], dx[i] = T(cGuard), T(cGuard)
+		}
+		ReLU(x, y)
+		ReLUMask(x, dy, dx)
+		for i := range y {
+			wantY, wantDx := T(cGuard), T(cGuard)
+			if i < n {
+				wantY = max(x[i], 0)
+				wantDx = 0
+				if x[i] > 0 {
+					wantDx = dy[i]
+				}
+			}
+			if bitsOf(y[i]) != bitsOf(wantY) {
+				t.Errorf("n=%d: ReLU y[%d] = %v for x = %v, want %v", n, i, y[i], x[i%max(n, 1)], wantY)
+			}
+			if bitsOf(dx[i]) != bitsOf(wantDx) {
+				t.Errorf("n=%d: ReLUMask dx[%d] = %v, want %v", n, i, dx[i], wantDx)
+			}
+		}
+	}
+}

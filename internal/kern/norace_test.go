@@ -1,0 +1,5 @@
+//go:build !race
+
+package kern
+
+const raceOn = false

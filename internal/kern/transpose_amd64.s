@@ -1,0 +1,140 @@
+//go:build !noasm
+
+#include "textflag.h"
+
+// func transpose8x8F32(src *float32, lds int, dst *float32, ldd int)
+// dst[l*ldd + r] = src[r*lds + l] for r, l in [0, 8): the standard AVX
+// 8×8 transpose (unpack pairs, shuffle quads, exchange 128-bit halves).
+TEXT ·transpose8x8F32(SB), NOSPLIT, $0-32
+	MOVQ src+0(FP), SI
+	MOVQ lds+8(FP), AX
+	SHLQ $2, AX
+	MOVQ dst+16(FP), DI
+	MOVQ ldd+24(FP), BX
+	SHLQ $2, BX
+	VMOVUPS (SI), Y0
+	ADDQ AX, SI
+	VMOVUPS (SI), Y1
+	ADDQ AX, SI
+	VMOVUPS (SI), Y2
+	ADDQ AX, SI
+	VMOVUPS (SI), Y3
+	ADDQ AX, SI
+	VMOVUPS (SI), Y4
+	ADDQ AX, SI
+	VMOVUPS (SI), Y5
+	ADDQ AX, SI
+	VMOVUPS (SI), Y6
+	ADDQ AX, SI
+	VMOVUPS (SI), Y7
+	// t0..t7
+	VUNPCKLPS Y1, Y0, Y8
+	VUNPCKHPS Y1, Y0, Y9
+	VUNPCKLPS Y3, Y2, Y10
+	VUNPCKHPS Y3, Y2, Y11
+	VUNPCKLPS Y5, Y4, Y12
+	VUNPCKHPS Y5, Y4, Y13
+	VUNPCKLPS Y7, Y6, Y14
+	VUNPCKHPS Y7, Y6, Y15
+	// tt0..tt7
+	VSHUFPS $0x44, Y10, Y8, Y0
+	VSHUFPS $0xEE, Y10, Y8, Y1
+	VSHUFPS $0x44, Y11, Y9, Y2
+	VSHUFPS $0xEE, Y11, Y9, Y3
+	VSHUFPS $0x44, Y14, Y12, Y4
+	VSHUFPS $0xEE, Y14, Y12, Y5
+	VSHUFPS $0x44, Y15, Y13, Y6
+	VSHUFPS $0xEE, Y15, Y13, Y7
+	// columns
+	VPERM2F128 $0x20, Y4, Y0, Y8
+	VPERM2F128 $0x20, Y5, Y1, Y9
+	VPERM2F128 $0x20, Y6, Y2, Y10
+	VPERM2F128 $0x20, Y7, Y3, Y11
+	VPERM2F128 $0x31, Y4, Y0, Y12
+	VPERM2F128 $0x31, Y5, Y1, Y13
+	VPERM2F128 $0x31, Y6, Y2, Y14
+	VPERM2F128 $0x31, Y7, Y3, Y15
+	VMOVUPS Y8, (DI)
+	ADDQ BX, DI
+	VMOVUPS Y9, (DI)
+	ADDQ BX, DI
+	VMOVUPS Y10, (DI)
+	ADDQ BX, DI
+	VMOVUPS Y11, (DI)
+	ADDQ BX, DI
+	VMOVUPS Y12, (DI)
+	ADDQ BX, DI
+	VMOVUPS Y13, (DI)
+	ADDQ BX, DI
+	VMOVUPS Y14, (DI)
+	ADDQ BX, DI
+	VMOVUPS Y15, (DI)
+	VZEROUPPER
+	RET
+
+// func transpose4x4F64(src *float64, lds int, dst *float64, ldd int)
+// dst[l*ldd + r] = src[r*lds + l] for r, l in [0, 4).
+TEXT ·transpose4x4F64(SB), NOSPLIT, $0-32
+	MOVQ src+0(FP), SI
+	MOVQ lds+8(FP), AX
+	SHLQ $3, AX
+	MOVQ dst+16(FP), DI
+	MOVQ ldd+24(FP), BX
+	SHLQ $3, BX
+	VMOVUPD (SI), Y0
+	ADDQ AX, SI
+	VMOVUPD (SI), Y1
+	ADDQ AX, SI
+	VMOVUPD (SI), Y2
+	ADDQ AX, SI
+	VMOVUPD (SI), Y3
+	VUNPCKLPD Y1, Y0, Y4
+	VUNPCKHPD Y1, Y0, Y5
+	VUNPCKLPD Y3, Y2, Y6
+	VUNPCKHPD Y3, Y2, Y7
+	VPERM2F128 $0x20, Y6, Y4, Y0
+	VPERM2F128 $0x20, Y7, Y5, Y1
+	VPERM2F128 $0x31, Y6, Y4, Y2
+	VPERM2F128 $0x31, Y7, Y5, Y3
+	VMOVUPD Y0, (DI)
+	ADDQ BX, DI
+	VMOVUPD Y1, (DI)
+	ADDQ BX, DI
+	VMOVUPD Y2, (DI)
+	ADDQ BX, DI
+	VMOVUPD Y3, (DI)
+	VZEROUPPER
+	RET
+
+// func transpose4x4F32(src *float32, lds int, dst *float32, ldd int)
+// dst[l*ldd + r] = src[r*lds + l] for r, l in [0, 4), in 128-bit registers.
+TEXT ·transpose4x4F32(SB), NOSPLIT, $0-32
+	MOVQ src+0(FP), SI
+	MOVQ lds+8(FP), AX
+	SHLQ $2, AX
+	MOVQ dst+16(FP), DI
+	MOVQ ldd+24(FP), BX
+	SHLQ $2, BX
+	VMOVUPS (SI), X0
+	ADDQ AX, SI
+	VMOVUPS (SI), X1
+	ADDQ AX, SI
+	VMOVUPS (SI), X2
+	ADDQ AX, SI
+	VMOVUPS (SI), X3
+	VUNPCKLPS X1, X0, X4
+	VUNPCKHPS X1, X0, X5
+	VUNPCKLPS X3, X2, X6
+	VUNPCKHPS X3, X2, X7
+	VSHUFPS $0x44, X6, X4, X0
+	VSHUFPS $0xEE, X6, X4, X1
+	VSHUFPS $0x44, X7, X5, X2
+	VSHUFPS $0xEE, X7, X5, X3
+	VMOVUPS X0, (DI)
+	ADDQ BX, DI
+	VMOVUPS X1, (DI)
+	ADDQ BX, DI
+	VMOVUPS X2, (DI)
+	ADDQ BX, DI
+	VMOVUPS X3, (DI)
+	RET

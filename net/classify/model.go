@@ -1,0 +1,328 @@
+package classify
+
+import (
+	"errors"
+	"fmt"
+	"math"
+	"time"
+
+	"github.com/rhomb/rhomb/data/prep"
+)
+
+// Model is a loaded classifier: its layers, its preprocessing and its
+// class names. It never changes after Read, so any number of goroutines
+// may classify with one Model at once, each with its own Work.
+type Model struct {
+	info         Info
+	layers       []layer
+	features     int // width of a feature row, the network's input
+	outputs      int
+	maxWidth     int
+	dtype        string
+	pipeline     *prep.Pipeline // nil: the inputs are features already
+	inputs       []string       // the pipeline's input fields
+	featureNames []string
+	classes      []string
+}
+
+// Info describes a model: where it came from and what it takes and gives.
+type Info struct {
+	// Version identifies the file's contents: the first 16 hex digits of
+	// its SHA-256 checksum, which changes with any change to the model.
+	Version string `json:"version"`
+	SHA256  string `json:"sha256"`
+	Source  string `json:"source"`
+	Library string `json:"library"` // the rhomb release that wrote it
+	// Created is when the file was written (zero when the header has no
+	// valid time).
+	Created  time.Time `json:"created"`
+	DType    string    `json:"dtype"` // element type of the stored weights
+	Features int       `json:"features"`
+	Outputs  int       `json:"outputs"`
+	// Inputs names the raw input fields, in order; nil when the model has
+	// no preprocessing and takes feature vectors only.
+	Inputs  []string `json:"inputs,omitempty"`
+	Classes []string `json:"classes,omitempty"`
+	Label   string   `json:"label,omitempty"`
+	Loss    string   `json:"loss,omitempty"`
+	// Normalization is the scale mode the model was trained with
+	// ("global", "per-layer"), or "" for plain weights. Prediction uses the
+	// stored W either way.
+	Normalization string         `json:"normalization,omitempty"`
+	Graph         []Node         `json:"graph"`
+	Metrics       map[string]any `json:"metrics,omitempty"`
+	// Checkpoint reports that the file also holds trainer state, which
+	// this package ignores.
+	Checkpoint bool `json:"checkpoint,omitempty"`
+}
+
+// Node is one step of the network, for Info.
+type Node struct {
+	Name    string `json:"name"`
+	Kind    string `json:"kind"`
+	In, Out int    `json:"-"`
+}
+
+// Info returns the model's description. The slices and map are the
+// model's own: do not modify them.
+func (m *Model) Info() Info { return m.info }
+
+// Classes returns the class names in output order (for one ±1 output, the
+// class encoded −1 first), or nil when the file names none. The slice is
+// the model's own.
+func (m *Model) Classes() []string { return m.classes }
+
+// Features is the width of a feature row, the network's input.
+func (m *Model) Features() int { return m.features }
+
+// Outputs is the number of network outputs: 1 for a ±1 binary model, the
+// number of classes otherwise.
+func (m *Model) Outputs() int { return m.outputs }
+
+// Inputs returns the names of the raw input fields in the order
+// ClassifyFields expects them, or nil for a model without preprocessing.
+// The slice is the model's own.
+func (m *Model) Inputs() []string { return m.inputs }
+
+// FeatureNames names every feature, as prep.Pipeline.FeatureNames does
+// ("x0", "x1", … for a model without preprocessing). The slice is the
+// model's own.
+func (m *Model) FeatureNames() []string { return m.featureNames }
+
+// Pipeline returns the model's preprocessing, or nil. It is the model's
+// own and must not be modified.
+func (m *Model) Pipeline() *prep.Pipeline { return m.pipeline }
+
+// Answer is the verdict on one row.
+type Answer struct {
+	// Class is the index of the predicted class: for one output, 1 when
+	// the score is positive and 0 otherwise; for several, the first output
+	// of the largest score. It is the training library's rule
+	// (data.ClassOf).
+	Class int
+	// Label is Classes()[Class], or "" when the model names no classes.
+	Label string
+	// Scores are the network's outputs, bit for bit: one per class, or one
+	// signed score for a ±1 binary model. The slice belongs to the Work
+	// and is overwritten by its next use; copy it to keep it.
+	Scores []float64
+}
+
+// Work holds the buffers one goroutine needs to classify: a Work may not
+// be used by two goroutines at once, but a Model may. After its first use
+// at a given batch size, classifying with it allocates nothing.
+type Work struct {
+	m      *Model
+	feat   []float64 // one encoded row
+	a, b   []float64 // layer outputs
+	scores []float64 // batch outputs
+	cols   []prep.Column
+	num    []float64 // backing for cols
+	cat    []string
+	miss   []bool
+}
+
+// NewWork returns buffers sized for m.
+func (m *Model) NewWork() *Work {
+	return &Work{
+		m:    m,
+		feat: make([]float64, m.features),
+		a:    make([]float64, m.maxWidth),
+		b:    make([]float64, m.maxWidth),
+	}
+}
+
+func (m *Model) work(w *Work) *Work {
+	if w == nil {
+		return m.NewWork()
+	}
+	if w.m != m {
+		panic("classify: a Work made by one Model used with another; call NewWork on this Model")
+	}
+	return w
+}
+
+// Errors of rows, carried by *prep.FieldError (single rows) or *RowError
+// (batches) and found with errors.Is. Raw feature vectors report NaN and
+// infinite features with prep's sentinels (prep.ErrNotNumber,
+// prep.ErrInfinite) and a wrong width with prep.ErrRagged, so that a
+// caller tests one set of sentinels whatever the input path.
+var (
+	// ErrNoPipeline: the model has no preprocessing, so it takes feature
+	// vectors only.
+	ErrNoPipeline = errors.New("classify: the model has no preprocessing pipeline; give feature vectors")
+	// ErrOutput: the network's output is NaN or infinite (inputs far
+	// outside the training range can overflow a polynomial layer).
+	ErrOutput = errors.New("classify: the network's output is not finite")
+)
+
+// RowError reports which row of a batch failed. Err is usually a
+// *prep.FieldError naming the field.
+type RowError struct {
+	Row int // from 0, in the batch
+	Err error
+}
+
+func (e *RowError) Error() string { return fmt.Sprintf("classify: row %d: %v", e.Row, e.Err) }
+func (e *RowError) Unwrap() error { return e.Err }
+
+// checkVector refuses a feature vector of the wrong width or with a NaN
+// or infinite value, naming the feature.
+func (m *Model) checkVector(x []float64) error {
+	if len(x) != m.features {
+		return &prep.FieldError{Row: -1, Err: fmt.Errorf("%w: %d features, the model takes %d", prep.ErrRagged, len(x), m.features)}
+	}
+	for i, v := range x {
+		switch {
+		case math.IsNaN(v):
+			return &prep.FieldError{Field: m.featureNames[i], Row: -1, Value: "NaN", Err: prep.ErrNotNumber}
+		case math.IsInf(v, 0):
+			return &prep.FieldError{Field: m.featureNames[i], Row: -1, Value: infText(v), Err: prep.ErrInfinite}
+		}
+	}
+	return nil
+}
+
+func infText(v float64) string {
+	if v > 0 {
+		return "+Inf"
+	}
+	return "-Inf"
+}
+
+// finish runs the network on w.feat-like row x and writes its outputs
+// into dst.
+func (m *Model) run(w *Work, x, dst []float64) (Answer, error) {
+	out := m.forward(x, w.a, w.b)
+	copy(dst, out)
+	return m.answer(dst)
+}
+
+func (m *Model) answer(s []float64) (Answer, error) {
+	for _, v := range s {
+		if math.IsNaN(v) || math.IsInf(v, 0) {
+			return Answer{}, ErrOutput
+		}
+	}
+	c := 0
+	if len(s) == 1 {
+		if s[0] > 0 {
+			c = 1
+		}
+	} else {
+		for j, v := range s {
+			if v > s[c] {
+				c = j
+			}
+		}
+	}
+	a := Answer{Class: c, Scores: s}
+	if m.classes != nil {
+		a.Label = m.classes[c]
+	}
+	return a, nil
+}
+
+// one returns the Work's single-row output buffer.
+func (w *Work) one() []float64 {
+	w.grow(1)
+	return w.scores[:w.m.outputs]
+}
+
+func (w *Work) grow(rows int) {
+	if n := rows * w.m.outputs; len(w.scores) < n {
+		w.scores = make([]float64, n)
+	}
+}
+
+// ClassifyVector classifies one feature vector (len Features). A wrong
+// width, NaN or infinity is a *prep.FieldError naming the feature. A nil
+// w allocates a Work for the call.
+func (m *Model) ClassifyVector(w *Work, x []float64) (Answer, error) {
+	w = m.work(w)
+	if err := m.checkVector(x); err != nil {
+		return Answer{}, err
+	}
+	return m.run(w, x, w.one())
+}
+
+// ClassifyFields classifies one row of raw cells, one per input field in
+// the order of Inputs, through the model's pipeline
+// (prep.Pipeline.ApplyStrings). Errors are *prep.FieldError naming the
+// field: missing value, not a number, infinite, unknown category, wrong
+// number of fields.
+func (m *Model) ClassifyFields(w *Work, fields []string) (Answer, error) {
+	w = m.work(w)
+	if m.pipeline == nil {
+		return Answer{}, ErrNoPipeline
+	}
+	if err := m.pipeline.ApplyStrings(fields, w.feat); err != nil {
+		return Answer{}, err
+	}
+	return m.run(w, w.feat, w.one())
+}
+
+// ClassifyMap classifies one row of raw cells by field name
+// (prep.Pipeline.ApplyMap): an absent field is missing, and a name that is
+// no input is an error, so that a misspelt field is never taken for a
+// missing one.
+func (m *Model) ClassifyMap(w *Work, fields map[string]string) (Answer, error) {
+	w = m.work(w)
+	if m.pipeline == nil {
+		return Answer{}, ErrNoPipeline
+	}
+	if err := m.pipeline.ApplyMap(fields, w.feat); err != nil {
+		return Answer{}, err
+	}
+	return m.run(w, w.feat, w.one())
+}
+
+// ClassifyVectors classifies rows feature vectors held row-major in x
+// (rows×Features) and writes one Answer per row into dst (len ≥ rows).
+// The answers' Scores share one buffer of the Work. The first bad row
+// stops the batch with a *RowError; dst then holds the rows before it.
+func (m *Model) ClassifyVectors(w *Work, x []float64, rows int, dst []Answer) error {
+	w = m.work(w)
+	if len(x) != rows*m.features || len(dst) < rows {
+		return &RowError{Row: -1, Err: &prep.FieldError{Row: -1, Err: fmt.Errorf("%w: %d values for %d rows of %d features, %d answers", prep.ErrRagged, len(x), rows, m.features, len(dst))}}
+	}
+	w.grow(rows)
+	o := m.outputs
+	for r := range rows {
+		row := x[r*m.features : (r+1)*m.features]
+		if err := m.checkVector(row); err != nil {
+			return &RowError{Row: r, Err: err}
+		}
+		a, err := m.run(w, row, w.scores[r*o:(r+1)*o])
+		if err != nil {
+			return &RowError{Row: r, Err: err}
+		}
+		dst[r] = a
+	}
+	return nil
+}
+
+// ClassifyMaps classifies a batch of rows by field name, as ClassifyMap
+// does each, writing one Answer per row into dst (len ≥ len(rows)).
+func (m *Model) ClassifyMaps(w *Work, rows []map[string]string, dst []Answer) error {
+	w = m.work(w)
+	if m.pipeline == nil {
+		return ErrNoPipeline
+	}
+	if len(dst) < len(rows) {
+		return &RowError{Row: -1, Err: fmt.Errorf("classify: %d answers for %d rows", len(dst), len(rows))}
+	}
+	w.grow(len(rows))
+	o := m.outputs
+	for r, fields := range rows {
+		if err := m.pipeline.ApplyMap(fields, w.feat); err != nil {
+			return &RowError{Row: r, Err: err}
+		}
+		a, err := m.run(w, w.feat, w.scores[r*o:(r+1)*o])
+		if err != nil {
+			return &RowError{Row: r, Err: err}
+		}
+		dst[r] = a
+	}
+	return nil
+}

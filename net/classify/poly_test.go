@@ -1,0 +1,106 @@
+package classify_test
+
+import (
+	"fmt"
+	"math"
+	"testing"
+
+	"github.com/rhomb/rhomb/net"
+	"github.com/rhomb/rhomb/net/classify"
+	"github.com/rhomb/rhomb/net/modelfile"
+)
+
+// polyModel saves a one-node polynomial network (input → poly → readout)
+// and returns it with classify's reading of it.
+func polyModel(t *testing.T, degree int, lo, hi float64, fit net.Fit) (*net.Network[float64], *classify.Model) {
+	t.Helper()
+	n, err := net.NewBuilder[float64](3).Dense("h", 5).PolyReLU("p", degree, lo, hi, fit).Readout("out", 2).Build()
+	if err != nil {
+		t.Fatal(err)
+	}
+	if err := n.Init(net.InitSettings{Seed: uint64(degree)}); err != nil {
+		t.Fatal(err)
+	}
+	return n, saveLoad(t, &modelfile.Model[float64]{Network: n})
+}
+
+// TestPolyInterpolationSameCoefficients: the interpolation fit is a plain
+// loop in both libraries, so the coefficients must be equal bit for bit;
+// the reference is net.PolyReLU.Coefficients.
+func TestPolyInterpolationSameCoefficients(t *testing.T) {
+	bitsChecked(t, "poly")
+	for _, d := range []int{1, 2, 5, 16, 64} {
+		n, c := polyModel(t, d, -3, 5, net.FitInterpolation)
+		want := n.Node("p").(*net.PolyReLU[float64]).Coefficients()
+		got := classify.PolyCoefficients(c, "p")
+		for k := range want {
+			if math.Float64bits(got[k]) != math.Float64bits(want[k]) {
+				t.Fatalf("degree %d: c_%d = %v, training %v", d, k, got[k], want[k])
+			}
+		}
+	}
+}
+
+// TestPolyLeastSquaresCoefficients compares classify's closed-form
+// least-squares fit with the training library's Householder QR solution of
+// the same problem. Both are computed from the same matrix A (M×n,
+// M = 50n, built by the same recurrence), so they differ only by the
+// solvers' rounding.
+//
+// Tolerance. Householder QR is backward stable for least squares: the
+// computed solution solves a problem with ‖ΔA_j‖ ≤ γ̃_{Mn}‖A_j‖ per column,
+// γ̃_{Mn} ≈ c·M·n·u with a small constant c (Higham, Accuracy and Stability
+// of Numerical Algorithms, 2nd ed., Thm 20.3; from memory). The
+// perturbation bound for least squares (Higham Thm 20.1; from memory) is
+// then ‖Δc‖/‖c‖ ≤ κε(2 + (κ + 1)‖r‖/(‖A‖‖c‖)) with κ = κ₂(A) = √2 for
+// this basis (net/poly.go) and ‖r‖ ≤ ‖f‖ ≤ ‖A‖‖c‖ (the residual of a
+// least-squares fit is at most the data). The closed form's error is
+// smaller: each c_k is a sum of M terms of size at most max|f|, within
+// γ_M of exact. With c = 4, u = 2⁻⁵³: tol = √2·4Mnu·(2 + √2 + 1)·‖c‖.
+func TestPolyLeastSquaresCoefficients(t *testing.T) {
+	for _, tc := range []struct {
+		d      int
+		lo, hi float64
+	}{{1, -1, 1}, {4, -3, 3}, {6, -4, 4}, {7, -2, 5}, {20, -1, 1}, {64, -6, 6}} {
+		t.Run(fmt.Sprintf("degree=%d/[%v,%v]", tc.d, tc.lo, tc.hi), func(t *testing.T) {
+			n, c := polyModel(t, tc.d, tc.lo, tc.hi, net.FitLeastSquares)
+			want := n.Node("p").(*net.PolyReLU[float64]).Coefficients()
+			got := classify.PolyCoefficients(c, "p")
+			var diff, norm float64
+			for k := range want {
+				diff += (got[k] - want[k]) * (got[k] - want[k])
+				norm += want[k] * want[k]
+			}
+			diff, norm = math.Sqrt(diff), math.Sqrt(norm)
+			nn := float64(tc.d + 1)
+			m := 50 * nn
+			tol := math.Sqrt2 * 4 * m * nn * 0x1p-53 * (2 + math.Sqrt2 + 1) * norm
+			t.Logf("‖Δc‖ = %.3g, ‖c‖ = %.3g, tolerance %.3g", diff, norm, tol)
+			if !(diff <= tol) {
+				t.Fatalf("‖c − c_training‖ = %g > %g", diff, tol)
+			}
+		})
+	}
+}
+
+// TestPolyLeastSquaresSameBits: given the training library's own
+// coefficients, classify's evaluation of a least-squares poly-relu model
+// is bit for bit the training forward pass; only the fit differs (above).
+func TestPolyLeastSquaresSameBits(t *testing.T) {
+	bitsChecked(t, "poly")
+	split := demoSplit(t)
+	for _, binary := range []bool{false, true} {
+		set := split.Train
+		if binary {
+			set = binarySet(set)
+		}
+		m := build(t, kindCase{"poly-ls", "per-layer", true, binary}, set)
+		c := saveLoad(t, m)
+		for _, name := range []string{"acthidden1", "acthidden2"} {
+			if !classify.SetPolyCoefficients(c, name, m.Network.Node(name).(*net.PolyReLU[float64]).Coefficients()) {
+				t.Fatalf("no poly node %q", name)
+			}
+		}
+		sameBits(t, c, set.X, set.Rows, m.Network.Forward(set.X, set.Rows))
+	}
+}
