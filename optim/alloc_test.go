@@ -1,6 +1,7 @@
 package optim
 
 import (
+	"math"
 	"testing"
 
 	"github.com/rhomb/rhomb/data"
@@ -54,6 +55,21 @@ func TestStepAllocatesNothing(t *testing.T) {
 					t.Errorf("%v, %T, %+v: %v allocations per step, want 0", shape, m, s, a)
 				}
 			}
+		}
+	}
+}
+
+// TestNotFinite: x − x is 0 exactly for finite x (IEEE 754: x − x = +0 for
+// finite x, NaN for ±Inf and NaN; common practice, no source).
+func TestNotFinite(t *testing.T) {
+	for _, x := range []float64{0, math.Copysign(0, -1), 1, -3.5, math.MaxFloat64, -math.MaxFloat64, math.SmallestNonzeroFloat64} {
+		if notFinite(x) || notFinite(float32(x)) && !math.IsInf(float64(float32(x)), 0) {
+			t.Errorf("%v reported not finite", x)
+		}
+	}
+	for _, x := range []float64{math.NaN(), math.Inf(1), math.Inf(-1)} {
+		if !notFinite(x) || !notFinite(float32(x)) {
+			t.Errorf("%v reported finite", x)
 		}
 	}
 }

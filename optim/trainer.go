@@ -324,8 +324,8 @@ func (t *Trainer[T]) takeStep() error {
 func (t *Trainer[T]) update(lr float64) error {
 	for _, p := range t.params {
 		for j, g := range p.Grad {
-			if f := float64(g); math.IsNaN(f) || math.IsInf(f, 0) {
-				return &NonFiniteError{Step: t.step + 1, Epoch: t.epoch, What: "gradient of " + p.Name, Index: j, Value: f}
+			if notFinite(g) {
+				return &NonFiniteError{Step: t.step + 1, Epoch: t.epoch, What: "gradient of " + p.Name, Index: j, Value: float64(g)}
 			}
 		}
 	}
@@ -365,8 +365,8 @@ func (t *Trainer[T]) update(lr float64) error {
 				theta += sigma * t.noiseRNG.NormFloat64()
 			}
 			nv := T(theta)
-			if f := float64(nv); bad == nil && (math.IsNaN(f) || math.IsInf(f, 0)) {
-				bad = &NonFiniteError{Step: t.step + 1, Epoch: t.epoch, What: "update of " + p.Name, Index: j, Value: f}
+			if notFinite(nv) && bad == nil {
+				bad = &NonFiniteError{Step: t.step + 1, Epoch: t.epoch, What: "update of " + p.Name, Index: j, Value: float64(nv)}
 			}
 			p.Value[j] = nv
 		}
@@ -470,3 +470,9 @@ func (t *Trainer[T]) fullMargins() {
 
 // Steps returns the steps taken and the epochs completed so far.
 func (t *Trainer[T]) Steps() (steps, epochs int) { return t.step, t.epoch }
+
+// notFinite reports whether x is NaN or infinite: x − x is 0 for every
+// finite x and NaN otherwise. It compiles to a subtraction and a compare,
+// far cheaper per element than math.IsNaN and math.IsInf together on
+// this hot path.
+func notFinite[T net.Float](x T) bool { return x-x != 0 }
