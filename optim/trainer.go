@@ -348,27 +348,17 @@ func (t *Trainer[T]) update(lr float64) error {
 		if t.vel != nil {
 			v = t.vel[i]
 		}
-		for j, gj := range p.Grad {
-			theta := float64(p.Value[j])
-			g := float64(gj) + d*theta
-			if v != nil {
-				vj := mu*float64(v[j]) + g
-				v[j] = T(vj)
-				if t.s.Nesterov {
-					g += mu * vj
-				} else {
-					g = vj
-				}
-			}
-			theta -= lr * g
-			if sigma > 0 {
-				theta += sigma * t.noiseRNG.NormFloat64()
-			}
-			nv := T(theta)
-			if notFinite(nv) && bad == nil {
-				bad = &NonFiniteError{Step: t.step + 1, Epoch: t.epoch, What: "update of " + p.Name, Index: j, Value: float64(nv)}
-			}
-			p.Value[j] = nv
+		j := -1
+		switch {
+		case v == nil && sigma == 0:
+			j = stepPlain(p.Value, p.Grad, lr, d)
+		case v == nil:
+			j = stepNoisy(p.Value, p.Grad, lr, d, sigma, t.noiseRNG)
+		default:
+			j = stepMomentum(p.Value, p.Grad, v, lr, d, mu, t.s.Nesterov, sigma, t.noiseRNG)
+		}
+		if j >= 0 && bad == nil {
+			bad = &NonFiniteError{Step: t.step + 1, Epoch: t.epoch, What: "update of " + p.Name, Index: j, Value: float64(p.Value[j])}
 		}
 	}
 	if bad != nil {
@@ -381,6 +371,73 @@ func (t *Trainer[T]) update(lr float64) error {
 		return bad
 	}
 	return nil
+}
+
+// The update loops. Each computes, per element and in float64,
+//
+//	g ← grad + d·θ;  v ← μv + g;  g ← v (heavy ball) or g + μv (Nesterov)
+//	θ ← θ − ηg;  θ ← θ + σξ
+//
+// in that order, so every variant gives the bits the general one would;
+// they exist so that the common cases run without per-element branches.
+// Each returns the index of the first updated value that is not finite,
+// or −1.
+
+func stepPlain[T net.Float](val, grad []T, lr, d float64) int {
+	bad := -1
+	grad = grad[:len(val)]
+	for j, gj := range grad {
+		theta := float64(val[j])
+		theta -= lr * (float64(gj) + d*theta)
+		nv := T(theta)
+		if notFinite(nv) && bad < 0 {
+			bad = j
+		}
+		val[j] = nv
+	}
+	return bad
+}
+
+func stepNoisy[T net.Float](val, grad []T, lr, d, sigma float64, rng *rand.Rand) int {
+	bad := -1
+	grad = grad[:len(val)]
+	for j, gj := range grad {
+		theta := float64(val[j])
+		theta -= lr * (float64(gj) + d*theta)
+		theta += sigma * rng.NormFloat64()
+		nv := T(theta)
+		if notFinite(nv) && bad < 0 {
+			bad = j
+		}
+		val[j] = nv
+	}
+	return bad
+}
+
+func stepMomentum[T net.Float](val, grad, vel []T, lr, d, mu float64, nesterov bool, sigma float64, rng *rand.Rand) int {
+	bad := -1
+	grad, vel = grad[:len(val)], vel[:len(val)]
+	for j, gj := range grad {
+		theta := float64(val[j])
+		g := float64(gj) + d*theta
+		vj := mu*float64(vel[j]) + g
+		vel[j] = T(vj)
+		if nesterov {
+			g += mu * vj
+		} else {
+			g = vj
+		}
+		theta -= lr * g
+		if sigma > 0 {
+			theta += sigma * rng.NormFloat64()
+		}
+		nv := T(theta)
+		if notFinite(nv) && bad < 0 {
+			bad = j
+		}
+		val[j] = nv
+	}
+	return bad
 }
 
 // observe fills t.info from the state before the update.
