@@ -1,6 +1,7 @@
 // Command edge classifies rows with a model embedded in the binary: no
 // model file to ship, no training code linked (it imports only package
-// classify, which imports only the standard library and data/prep).
+// classify, which imports only the standard library, data/prep and
+// internal/container).
 //
 //	edge < readings.csv > labelled.csv
 //	edge -in readings.csv

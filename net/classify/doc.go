@@ -1,6 +1,7 @@
 // Package classify loads a rhomb model file and classifies rows with it,
-// for services and edge binaries. It imports only the standard library and
-// data/prep (itself standard-library only), never the training code or
+// for services and edge binaries. It imports only the standard library,
+// data/prep and internal/container (the model file's container layer),
+// both themselves standard-library only — never the training code or
 // gonum, so a program that only predicts stays small; a test checks the
 // import graph.
 //

@@ -2,7 +2,6 @@ package classify
 
 import (
 	"bytes"
-	"crypto/sha256"
 	"encoding/binary"
 	"encoding/hex"
 	"encoding/json"
@@ -10,40 +9,39 @@ import (
 	"fmt"
 	"math"
 	"os"
-	"sort"
 	"time"
 
 	"github.com/rhomb/rhomb/data/prep"
+	"github.com/rhomb/rhomb/internal/container"
 )
 
-// The layout and limits of docs/model-file.md, format version 1. They are
-// restated here rather than imported because this package must not link
-// the training code.
+// The layout and the container-level limits of docs/model-file.md, format
+// version 1, live in internal/container (standard library only), shared
+// with the training library's reader; what follows bounds and mirrors the
+// graph, which this package decodes itself. The graph's constants are
+// restated rather than imported because this package must not link the
+// training code.
 const (
-	fileMagic     = "RHOMBMF\n"
-	fileVersion   = 1
-	prefixLen     = 16
-	sumLen        = 32
-	maxHeader     = 64 << 20
-	maxTensors    = 1 << 14
-	maxNodes      = 1 << 10
+	prefixLen     = container.PrefixLen
+	maxNodes      = container.MaxNodes
 	polyMaxDegree = 64
 	// maxFitCost caps Σ(d+1)² over the poly-relu nodes, as the training
 	// library's reader does, so that a hostile header cannot buy unbounded
 	// fitting work.
-	maxFitCost = 8 * 65 * 65
+	maxFitCost = container.MaxFitCost
 	// polyPointsPerCoef is the training library's number of least-squares
 	// points per coefficient (net.PolyPointsPerCoef).
 	polyPointsPerCoef = 50
 )
 
-// Sentinel causes carried by FileError; errors.Is finds them.
+// Sentinel causes carried by FileError; errors.Is finds them. The
+// container-level ones are the same values as net/modelfile's.
 var (
-	ErrMagic     = errors.New("not a rhomb model file (bad magic bytes)")
-	ErrVersion   = errors.New("unsupported model file format version")
-	ErrTruncated = errors.New("model file is truncated or its sizes do not fit it")
-	ErrChecksum  = errors.New("checksum mismatch: the model file is corrupted")
-	ErrHeader    = errors.New("bad model file header")
+	ErrMagic     = container.ErrMagic
+	ErrVersion   = container.ErrVersion
+	ErrTruncated = container.ErrTruncated
+	ErrChecksum  = container.ErrChecksum
+	ErrHeader    = container.ErrHeader
 	ErrShape     = errors.New("tensors do not fit the network")
 	ErrWeight    = errors.New("a weight is NaN or infinite")
 )
@@ -89,22 +87,14 @@ type fileHeader struct {
 		NoRetraction bool     `json:"no_retraction"`
 		Layers       []string `json:"layers"`
 	} `json:"normalization"`
-	Tensors    []fileTensor    `json:"tensors"`
-	Pipeline   json.RawMessage `json:"pipeline"`
-	Classes    []string        `json:"classes"`
-	Label      string          `json:"label"`
-	Loss       string          `json:"loss"`
-	Training   json.RawMessage `json:"training"`
-	Metrics    map[string]any  `json:"metrics"`
-	Checkpoint json.RawMessage `json:"checkpoint"`
-}
-
-type fileTensor struct {
-	Name   string `json:"name"`
-	Role   string `json:"role"`
-	DType  string `json:"dtype"`
-	Shape  []int  `json:"shape"`
-	Offset int64  `json:"offset"`
+	Tensors    []container.Tensor `json:"tensors"`
+	Pipeline   json.RawMessage    `json:"pipeline"`
+	Classes    []string           `json:"classes"`
+	Label      string             `json:"label"`
+	Loss       string             `json:"loss"`
+	Training   json.RawMessage    `json:"training"`
+	Metrics    map[string]any     `json:"metrics"`
+	Checkpoint json.RawMessage    `json:"checkpoint"`
 }
 
 type fileNode struct {
@@ -119,16 +109,6 @@ type fileNode struct {
 	// Coefficients, when present, are the training library's fit, used as
 	// they are.
 	Coefficients []float64 `json:"coefficients"`
-}
-
-func elemSize(d string) int64 {
-	switch d {
-	case "float32", "int32":
-		return 4
-	case "float64":
-		return 8
-	}
-	return 0
 }
 
 // Load reads and validates the model file at path; see Read.
@@ -151,85 +131,24 @@ func Read(b []byte, source string) (*Model, error) {
 	fail := func(off int64, err error, format string, args ...any) (*Model, error) {
 		return nil, &FileError{Source: source, Offset: off, Err: err, What: fmt.Sprintf(format, args...)}
 	}
-	if len(b) < prefixLen+sumLen {
-		return fail(int64(len(b)), ErrTruncated, "%d bytes is shorter than the smallest model file", len(b))
-	}
-	if string(b[:8]) != fileMagic {
-		return fail(0, ErrMagic, "")
-	}
-	if v := binary.LittleEndian.Uint32(b[8:]); v != fileVersion {
-		return fail(8, ErrVersion, "version %d; this package reads version %d", v, fileVersion)
-	}
-	hl := int64(binary.LittleEndian.Uint32(b[12:]))
-	if hl > maxHeader {
-		return fail(12, ErrHeader, "header length %d exceeds the %d-byte limit", hl, maxHeader)
-	}
-	if prefixLen+hl+sumLen > int64(len(b)) {
-		return fail(12, ErrTruncated, "a header of %d bytes does not fit in %d bytes", hl, len(b))
-	}
+	// internal/container checks what the training library's reader checks
+	// too (prefix, tensor table, checksum); the header is decoded, and its
+	// dtype checked, inside the callback, before the tensor table.
 	var h fileHeader
-	dec := json.NewDecoder(bytes.NewReader(b[prefixLen : prefixLen+hl]))
-	dec.DisallowUnknownFields()
-	if err := dec.Decode(&h); err != nil {
-		return fail(prefixLen, ErrHeader, "%v", err)
-	}
-	if h.Format != "rhomb-model" {
-		return fail(prefixLen, ErrHeader, "format %q, want \"rhomb-model\"", h.Format)
-	}
-	if h.DType != "float32" && h.DType != "float64" {
-		return fail(prefixLen, ErrHeader, "dtype %q, want float32 or float64", h.DType)
-	}
-	dataStart := (prefixLen + hl + 7) / 8 * 8
-	dataLen := int64(len(b)) - sumLen - dataStart
-	if dataLen < 0 {
-		return fail(prefixLen+hl, ErrTruncated, "no room for tensor data")
-	}
-
-	// The tensor table: known types, sizes within the file, aligned,
-	// tiling the data region without overlap.
-	if len(h.Tensors) > maxTensors {
-		return fail(prefixLen, ErrHeader, "%d tensors exceed the limit of %d", len(h.Tensors), maxTensors)
-	}
-	type extent struct{ start, end int64 }
-	extents := make([]extent, 0, len(h.Tensors))
-	byName := make(map[string]*fileTensor, len(h.Tensors))
-	var end int64
-	for i := range h.Tensors {
-		t := &h.Tensors[i]
-		size := elemSize(t.DType)
-		if size == 0 {
-			return fail(prefixLen, ErrHeader, "tensor %q: unknown dtype %q", t.Name, t.DType)
+	f, err := container.Parse(b, func(raw []byte) ([]container.Tensor, error) {
+		if err := container.DecodeHeader(raw, &h, &h.Format); err != nil {
+			return nil, err
 		}
-		if byName[t.Name] != nil {
-			return fail(prefixLen, ErrHeader, "tensor %q appears twice", t.Name)
+		if h.DType != "float32" && h.DType != "float64" {
+			return nil, fmt.Errorf("dtype %q, want float32 or float64", h.DType)
 		}
-		byName[t.Name] = t
-		n := int64(1)
-		for _, d := range t.Shape {
-			if d < 0 || (d > 0 && n > dataLen/int64(d)) {
-				return fail(prefixLen, ErrTruncated, "tensor %q: shape %v does not fit in %d bytes of data", t.Name, t.Shape, dataLen)
-			}
-			n *= int64(d)
-		}
-		if t.Offset < 0 || t.Offset%8 != 0 || t.Offset > dataLen || n*size > dataLen-t.Offset {
-			return fail(dataStart+max(t.Offset, 0), ErrTruncated, "tensor %q: %d bytes at offset %d do not fit in %d bytes of data (offsets are multiples of 8)", t.Name, n*size, t.Offset, dataLen)
-		}
-		extents = append(extents, extent{t.Offset, t.Offset + n*size})
-		end = max(end, (t.Offset+n*size+7)/8*8)
+		return h.Tensors, nil
+	})
+	if err != nil {
+		ce := err.(*container.Error)
+		return nil, &FileError{Source: source, Offset: ce.Offset, Err: ce.Err, What: ce.What}
 	}
-	if end != dataLen {
-		return fail(dataStart+end, ErrTruncated, "the tensor data is %d bytes, the tensors need %d", dataLen, end)
-	}
-	sort.Slice(extents, func(i, j int) bool { return extents[i].start < extents[j].start })
-	for i := 1; i < len(extents); i++ {
-		if extents[i].start < extents[i-1].end {
-			return fail(dataStart+extents[i].start, ErrHeader, "tensors overlap")
-		}
-	}
-	sum := sha256.Sum256(b[:len(b)-sumLen])
-	if !bytes.Equal(sum[:], b[len(b)-sumLen:]) {
-		return fail(int64(len(b)-sumLen), ErrChecksum, "")
-	}
+	byName, dataStart, sum := f.ByName, f.DataStart, f.Sum
 
 	// The graph: kinds and settings, widths, and each dense layer's
 	// weights, checked before any layer is built.
@@ -257,7 +176,7 @@ func Read(b []byte, source string) (*Model, error) {
 	if fitCost > maxFitCost {
 		return fail(prefixLen, ErrHeader, "polynomial activations of total size %d exceed the limit of %d", fitCost, maxFitCost)
 	}
-	data := b[dataStart : dataStart+dataLen]
+	data := f.Data
 	m := &Model{features: h.Inputs, dtype: h.DType}
 	seen := make(map[string]bool, len(nodes))
 	width := h.Inputs
@@ -400,7 +319,7 @@ func Read(b []byte, source string) (*Model, error) {
 
 // loadWeights copies a weight tensor out of the file, in the file's own
 // element type, and refuses a NaN or infinite weight.
-func (l *layer) loadWeights(t *fileTensor, data []byte) error {
+func (l *layer) loadWeights(t *container.Tensor, data []byte) error {
 	n := l.in * l.out
 	src := data[t.Offset:]
 	if t.DType == "float32" {

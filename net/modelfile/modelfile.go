@@ -2,7 +2,6 @@ package modelfile
 
 import (
 	"bytes"
-	"crypto/sha256"
 	"encoding/binary"
 	"encoding/json"
 	"fmt"
@@ -12,6 +11,7 @@ import (
 
 	"github.com/rhomb/rhomb/data/prep"
 	"github.com/rhomb/rhomb/internal/atomicfile"
+	"github.com/rhomb/rhomb/internal/container"
 	"github.com/rhomb/rhomb/internal/version"
 	"github.com/rhomb/rhomb/net"
 	"github.com/rhomb/rhomb/normalize"
@@ -90,7 +90,7 @@ func encode[T net.Float](m *Model[T]) ([]byte, error) {
 		return nil, fmt.Errorf("modelfile: Write: %w", err)
 	}
 	h := header{
-		Format: "rhomb-model", Library: "rhomb " + version.Version,
+		Format: container.Format, Library: "rhomb " + version.Version,
 		Created: time.Now().UTC().Format(time.RFC3339), DType: dtypeOf[T](),
 		Inputs: m.Network.In(), Classes: m.Classes, Label: m.Label, Loss: m.Loss,
 		Training: m.Training, Metrics: m.Metrics,
@@ -106,7 +106,7 @@ func encode[T net.Float](m *Model[T]) ([]byte, error) {
 	}
 	var data bytes.Buffer
 	add := func(name, role, dtype string, shape []int, write func(*bytes.Buffer)) {
-		h.Tensors = append(h.Tensors, tensorHeader{Name: name, Role: role, DType: dtype, Shape: shape, Offset: int64(data.Len())})
+		h.Tensors = append(h.Tensors, container.Tensor{Name: name, Role: role, DType: dtype, Shape: shape, Offset: int64(data.Len())})
 		write(&data)
 		for data.Len()%8 != 0 {
 			data.WriteByte(0)
@@ -157,18 +157,7 @@ func encode[T net.Float](m *Model[T]) ([]byte, error) {
 	if err != nil {
 		return nil, fmt.Errorf("modelfile: Write: header: %w", err)
 	}
-	var out bytes.Buffer
-	out.WriteString(magic)
-	binary.Write(&out, binary.LittleEndian, uint32(formatVersion))
-	binary.Write(&out, binary.LittleEndian, uint32(len(hj)))
-	out.Write(hj)
-	for out.Len()%8 != 0 {
-		out.WriteByte(0)
-	}
-	out.Write(data.Bytes())
-	sum := sha256.Sum256(out.Bytes())
-	out.Write(sum[:])
-	return out.Bytes(), nil
+	return container.Assemble(hj, data.Bytes()), nil
 }
 
 func isWeight[T net.Float](n *net.Network[T], p *net.Param[T]) bool {

@@ -2,17 +2,16 @@ package modelfile
 
 import (
 	"bytes"
-	"crypto/sha256"
 	"encoding/binary"
 	"encoding/json"
 	"fmt"
 	"io"
 	"math"
 	"os"
-	"sort"
 	"time"
 
 	"github.com/rhomb/rhomb/data/prep"
+	"github.com/rhomb/rhomb/internal/container"
 	"github.com/rhomb/rhomb/net"
 	"github.com/rhomb/rhomb/normalize"
 	"github.com/rhomb/rhomb/optim"
@@ -36,81 +35,19 @@ func Read[T net.Float](b []byte, source string) (*Model[T], error) {
 	fail := func(off int64, err error, format string, args ...any) (*Model[T], error) {
 		return nil, &FormatError{File: source, Offset: off, Err: err, What: fmt.Sprintf(format, args...)}
 	}
-	if len(b) < prefixLen+sumLen {
-		return fail(int64(len(b)), ErrTruncated, "%d bytes is shorter than the smallest model file", len(b))
-	}
-	if string(b[:8]) != magic {
-		return fail(0, ErrMagic, "")
-	}
-	if v := binary.LittleEndian.Uint32(b[8:]); v != formatVersion {
-		return fail(8, ErrVersion, "version %d; this library reads version %d — use the rhomb release that wrote it", v, formatVersion)
-	}
-	hl := int64(binary.LittleEndian.Uint32(b[12:]))
-	if hl > maxHeader {
-		return fail(12, ErrHeader, "header length %d exceeds the %d-byte limit", hl, maxHeader)
-	}
-	if prefixLen+hl+sumLen > int64(len(b)) {
-		return fail(12, ErrTruncated, "header of %d bytes does not fit in %d bytes", hl, len(b))
-	}
+	// The container: prefix, header, tensor table and checksum, checked in
+	// internal/container; the header is decoded here first, into this
+	// package's own type, before anything after it is checked.
 	var h header
-	dec := json.NewDecoder(bytes.NewReader(b[prefixLen : prefixLen+hl]))
-	dec.DisallowUnknownFields()
-	if err := dec.Decode(&h); err != nil {
-		return fail(prefixLen, ErrHeader, "%v", err)
+	f, err := container.Parse(b, func(raw []byte) ([]container.Tensor, error) {
+		err := container.DecodeHeader(raw, &h, &h.Format)
+		return h.Tensors, err
+	})
+	if err != nil {
+		ce := err.(*container.Error)
+		return nil, &FormatError{File: source, Offset: ce.Offset, Err: ce.Err, What: ce.What}
 	}
-	if h.Format != "rhomb-model" {
-		return fail(prefixLen, ErrHeader, "format %q, want \"rhomb-model\"", h.Format)
-	}
-	dataStart := (prefixLen + hl + 7) / 8 * 8
-	dataLen := int64(len(b)) - sumLen - dataStart
-	if dataLen < 0 {
-		return fail(prefixLen+hl, ErrTruncated, "no room for tensor data")
-	}
-
-	// The tensor table: sizes within the file, aligned, not overlapping.
-	if len(h.Tensors) > maxTensors {
-		return fail(prefixLen, ErrHeader, "%d tensors exceed the limit of %d", len(h.Tensors), maxTensors)
-	}
-	type extent struct{ start, end int64 }
-	var extents []extent
-	byName := map[string]*tensorHeader{}
-	var end int64
-	for i := range h.Tensors {
-		t := &h.Tensors[i]
-		size := int64(dtypeSize(t.DType))
-		if size == 0 {
-			return fail(prefixLen, ErrHeader, "tensor %q: unknown dtype %q", t.Name, t.DType)
-		}
-		if byName[t.Name] != nil {
-			return fail(prefixLen, ErrHeader, "tensor %q appears twice", t.Name)
-		}
-		byName[t.Name] = t
-		n := int64(1)
-		for _, d := range t.Shape {
-			if d < 0 || (d > 0 && n > dataLen/int64(d)) {
-				return fail(prefixLen, ErrTruncated, "tensor %q: shape %v does not fit in %d bytes of data", t.Name, t.Shape, dataLen)
-			}
-			n *= int64(d)
-		}
-		if t.Offset < 0 || t.Offset%8 != 0 || t.Offset > dataLen || n*size > dataLen-t.Offset {
-			return fail(dataStart+max(t.Offset, 0), ErrTruncated, "tensor %q: %d bytes at offset %d do not fit in %d bytes of data", t.Name, n*size, t.Offset, dataLen)
-		}
-		extents = append(extents, extent{t.Offset, t.Offset + n*size})
-		end = max(end, (t.Offset+n*size+7)/8*8)
-	}
-	if end != dataLen {
-		return fail(dataStart+end, ErrTruncated, "tensor data is %d bytes, the tensors need %d", dataLen, end)
-	}
-	sort.Slice(extents, func(i, j int) bool { return extents[i].start < extents[j].start })
-	for i := 1; i < len(extents); i++ {
-		if extents[i].start < extents[i-1].end {
-			return fail(dataStart+extents[i].start, ErrHeader, "tensors overlap")
-		}
-	}
-	sum := sha256.Sum256(b[:len(b)-sumLen])
-	if !bytes.Equal(sum[:], b[len(b)-sumLen:]) {
-		return fail(int64(len(b)-sumLen), ErrChecksum, "")
-	}
+	byName := f.ByName
 
 	// The graph: walk the widths and check every dense layer's weights are
 	// in the file with the right shape before building anything.
@@ -119,13 +56,13 @@ func Read[T net.Float](b []byte, source string) (*Model[T], error) {
 		d := json.NewDecoder(bytes.NewReader(raw))
 		d.DisallowUnknownFields()
 		if err := d.Decode(&specs[i]); err != nil {
-			return fail(prefixLen, ErrHeader, "graph node %d: %v", i, err)
+			return fail(container.PrefixLen, ErrHeader, "graph node %d: %v", i, err)
 		}
 	}
 	// Bound what building the graph costs before building it: a poly-relu
 	// fits a least-squares problem of about 400·(d+1)² bytes.
 	if len(specs) > maxNodes {
-		return fail(prefixLen, ErrHeader, "%d nodes exceed the limit of %d", len(specs), maxNodes)
+		return fail(container.PrefixLen, ErrHeader, "%d nodes exceed the limit of %d", len(specs), maxNodes)
 	}
 	fitCost := 0
 	for _, s := range specs {
@@ -134,10 +71,10 @@ func Read[T net.Float](b []byte, source string) (*Model[T], error) {
 		}
 	}
 	if fitCost > maxFitCost {
-		return fail(prefixLen, ErrHeader, "polynomial activations of total size %d exceed the limit of %d", fitCost, maxFitCost)
+		return fail(container.PrefixLen, ErrHeader, "polynomial activations of total size %d exceed the limit of %d", fitCost, maxFitCost)
 	}
 	if h.Inputs < 1 {
-		return fail(prefixLen, ErrHeader, "inputs %d", h.Inputs)
+		return fail(container.PrefixLen, ErrHeader, "inputs %d", h.Inputs)
 	}
 	width := h.Inputs
 	for i, s := range specs {
@@ -147,20 +84,20 @@ func Read[T net.Float](b []byte, source string) (*Model[T], error) {
 		case "dense", "readout":
 			t := byName[s.Name+".W"]
 			if t == nil || t.Role != roleWeight || len(t.Shape) != 2 || t.Shape[0] != s.Units || t.Shape[1] != width {
-				return fail(prefixLen, ErrShape, "node %d %q: want a weight tensor %q of shape [%d %d]", i, s.Name, s.Name+".W", s.Units, width)
+				return fail(container.PrefixLen, ErrShape, "node %d %q: want a weight tensor %q of shape [%d %d]", i, s.Name, s.Name+".W", s.Units, width)
 			}
 			width = s.Units
 		}
 	}
 	n, err := net.FromSpec[T](h.Inputs, specs)
 	if err != nil {
-		return fail(prefixLen, ErrShape, "%v", err)
+		return fail(container.PrefixLen, ErrShape, "%v", err)
 	}
 	if h.DType != "float32" && h.DType != "float64" {
-		return fail(prefixLen, ErrHeader, "dtype %q", h.DType)
+		return fail(container.PrefixLen, ErrHeader, "dtype %q", h.DType)
 	}
-	data := b[dataStart : dataStart+dataLen]
-	load := func(t *tensorHeader, dst []T) error {
+	data := f.Data
+	load := func(t *container.Tensor, dst []T) error {
 		want := 1
 		for _, d := range t.Shape {
 			want *= d
@@ -188,7 +125,7 @@ func Read[T net.Float](b []byte, source string) (*Model[T], error) {
 	}
 	for _, p := range n.Params() {
 		if err := load(byName[p.Name], p.Value); err != nil {
-			return fail(prefixLen, ErrShape, "%v", err)
+			return fail(container.PrefixLen, ErrShape, "%v", err)
 		}
 	}
 	m := &Model[T]{Network: n, Classes: h.Classes, Label: h.Label, Loss: h.Loss, Training: h.Training, Metrics: h.Metrics, Library: h.Library}
@@ -198,11 +135,11 @@ func Read[T net.Float](b []byte, source string) (*Model[T], error) {
 	if h.Normalization != nil {
 		o, err := h.Normalization.options()
 		if err != nil {
-			return fail(prefixLen, ErrHeader, "normalization: %v", err)
+			return fail(container.PrefixLen, ErrHeader, "normalization: %v", err)
 		}
 		w, err := normalize.Wrap(n, o)
 		if err != nil {
-			return fail(prefixLen, ErrShape, "normalization: %v", err)
+			return fail(container.PrefixLen, ErrShape, "normalization: %v", err)
 		}
 		for _, p := range w.Params() {
 			if isWeight(n, p) {
@@ -210,10 +147,10 @@ func Read[T net.Float](b []byte, source string) (*Model[T], error) {
 			}
 			t := byName[p.Name]
 			if t == nil || t.Role != roleParam {
-				return fail(prefixLen, ErrShape, "normalized parameter %q is missing", p.Name)
+				return fail(container.PrefixLen, ErrShape, "normalized parameter %q is missing", p.Name)
 			}
 			if err := load(t, p.Value); err != nil {
-				return fail(prefixLen, ErrShape, "%v", err)
+				return fail(container.PrefixLen, ErrShape, "%v", err)
 			}
 		}
 		w.Sync()
@@ -222,13 +159,13 @@ func Read[T net.Float](b []byte, source string) (*Model[T], error) {
 	if len(h.Pipeline) > 0 {
 		var p prep.Pipeline
 		if err := json.Unmarshal(h.Pipeline, &p); err != nil {
-			return fail(prefixLen, ErrHeader, "pipeline: %v", err)
+			return fail(container.PrefixLen, ErrHeader, "pipeline: %v", err)
 		}
 		if err := p.Validate(); err != nil {
-			return fail(prefixLen, ErrHeader, "pipeline: %v", err)
+			return fail(container.PrefixLen, ErrHeader, "pipeline: %v", err)
 		}
 		if p.Width() != h.Inputs {
-			return fail(prefixLen, ErrShape, "pipeline makes %d features, the network takes %d", p.Width(), h.Inputs)
+			return fail(container.PrefixLen, ErrShape, "pipeline makes %d features, the network takes %d", p.Width(), h.Inputs)
 		}
 		m.Pipeline = &p
 	}
@@ -243,7 +180,7 @@ func Read[T net.Float](b []byte, source string) (*Model[T], error) {
 				continue
 			}
 			if t.DType != "float64" || len(t.Shape) != 1 || t.Shape[0] != len(p.Value) {
-				return fail(prefixLen, ErrShape, "momentum buffer %q: shape %v %s, want [%d] float64", t.Name, t.Shape, t.DType, len(p.Value))
+				return fail(container.PrefixLen, ErrShape, "momentum buffer %q: shape %v %s, want [%d] float64", t.Name, t.Shape, t.DType, len(p.Value))
 			}
 			v := make([]float64, len(p.Value))
 			for i := range v {
@@ -252,11 +189,11 @@ func Read[T net.Float](b []byte, source string) (*Model[T], error) {
 			st.Velocity = append(st.Velocity, v)
 		}
 		if st.Velocity != nil && len(st.Velocity) != len(m.Trainable().Params()) {
-			return fail(prefixLen, ErrShape, "%d momentum buffers for %d parameters", len(st.Velocity), len(m.Trainable().Params()))
+			return fail(container.PrefixLen, ErrShape, "%d momentum buffers for %d parameters", len(st.Velocity), len(m.Trainable().Params()))
 		}
 		t := byName["order"]
 		if t == nil || t.Role != roleOrder || t.DType != "int32" || len(t.Shape) != 1 {
-			return fail(prefixLen, ErrShape, "checkpoint without its batch order")
+			return fail(container.PrefixLen, ErrShape, "checkpoint without its batch order")
 		}
 		st.Order = make([]int, t.Shape[0])
 		for i := range st.Order {
@@ -295,28 +232,28 @@ func ElementType(path string) (string, error) {
 		return "", fmt.Errorf("modelfile: %w", err)
 	}
 	defer f.Close()
-	var prefix [prefixLen]byte
+	var prefix [container.PrefixLen]byte
 	if _, err := io.ReadFull(f, prefix[:]); err != nil {
 		return "", &FormatError{File: path, Offset: 0, Err: ErrTruncated}
 	}
-	if string(prefix[:8]) != magic {
+	if string(prefix[:8]) != container.Magic {
 		return "", &FormatError{File: path, Offset: 0, Err: ErrMagic}
 	}
 	hl := int64(binary.LittleEndian.Uint32(prefix[12:]))
-	if hl > maxHeader {
+	if hl > container.MaxHeader {
 		return "", &FormatError{File: path, Offset: 12, Err: ErrHeader, What: "header too long"}
 	}
-	if fi, err := f.Stat(); err == nil && fi.Size() < prefixLen+hl+sumLen {
+	if fi, err := f.Stat(); err == nil && fi.Size() < container.PrefixLen+hl+container.SumLen {
 		return "", &FormatError{File: path, Offset: 12, Err: ErrTruncated, What: fmt.Sprintf("header of %d bytes does not fit in %d bytes", hl, fi.Size())}
 	}
 	var h struct {
 		DType string `json:"dtype"`
 	}
 	if err := json.NewDecoder(io.LimitReader(f, hl)).Decode(&h); err != nil {
-		return "", &FormatError{File: path, Offset: prefixLen, Err: ErrHeader, What: err.Error()}
+		return "", &FormatError{File: path, Offset: container.PrefixLen, Err: ErrHeader, What: err.Error()}
 	}
 	if h.DType != "float32" && h.DType != "float64" {
-		return "", &FormatError{File: path, Offset: prefixLen, Err: ErrHeader, What: fmt.Sprintf("dtype %q", h.DType)}
+		return "", &FormatError{File: path, Offset: container.PrefixLen, Err: ErrHeader, What: fmt.Sprintf("dtype %q", h.DType)}
 	}
 	return h.DType, nil
 }

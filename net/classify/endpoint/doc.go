@@ -1,7 +1,8 @@
 // Package endpoint serves a classify.Model over HTTP with net/http: a
 // handler library for services, with limits that keep a busy or hostile
 // client from exhausting the server. It imports only the standard library
-// and package classify.
+// and package classify (which adds data/prep and internal/container, both
+// standard-library only).
 //
 // # Routes
 //
