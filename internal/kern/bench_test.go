@@ -79,3 +79,57 @@ func benchSize[T Float](b *testing.B, n int) {
 		})
 	}
 }
+
+// BenchmarkSmallStep runs the eight products of one SGD step of the
+// network 16-32-32-4 at batch 32, with the transposes net.Dense uses
+// (forward X·Wᵀ, weight gradient dYᵀ·X, input gradient dY·W): the
+// overhead-bound case, where per-call costs and block padding, not
+// arithmetic, set the time.
+func BenchmarkSmallStep(b *testing.B) {
+	b.Run("float=32", func(b *testing.B) { benchSmallStep[float32](b) })
+	b.Run("float=64", func(b *testing.B) { benchSmallStep[float64](b) })
+}
+
+func benchSmallStep[T Float](b *testing.B) {
+	type prod struct {
+		tA, tB  bool
+		m, n, k int
+	}
+	const batch = 32
+	widths := []int{16, 32, 32, 4}
+	var ps []prod
+	for l := range 3 {
+		in, out := widths[l], widths[l+1]
+		ps = append(ps, prod{false, true, batch, out, in}, prod{true, false, out, in, batch})
+		if l > 0 {
+			ps = append(ps, prod{false, false, batch, in, out})
+		}
+	}
+	rng := rand.New(rand.NewPCG(1, 1))
+	buf := func(n int) []T {
+		s := make([]T, n)
+		for i := range s {
+			s[i] = T(rng.Float64())
+		}
+		return s
+	}
+	a, bb, c := buf(32*32), buf(32*32), buf(32*32)
+	run := func() {
+		for _, p := range ps {
+			lda, ldb := p.k, p.n
+			if p.tA {
+				lda = p.m
+			}
+			if p.tB {
+				ldb = p.k
+			}
+			Gemm(p.tA, p.tB, p.m, p.n, p.k, 1, a, lda, bb, ldb, 0, c, p.n)
+		}
+	}
+	run()
+	b.ReportAllocs()
+	b.ResetTimer()
+	for range b.N {
+		run()
+	}
+}

@@ -27,9 +27,14 @@
 // -tags noasm, or for another architecture, leaves only the pure-Go code.
 //
 // Large products are spread over a fixed pool of workers that live for the
-// whole process; each worker claims whole tiles. Small products, and every
-// product when GOMAXPROCS is 1, run on the caller's goroutine. After the
-// first call of a given size, Gemm allocates nothing.
+// whole process; each worker claims whole tiles, and between products
+// polls for the next one for spinFor before parking, so that the products
+// of one training step do not each pay a wake-up. Small products, and every
+// product when GOMAXPROCS is 1, run on the caller's goroutine; they take
+// the assembly kernel whose block shape pads them least, and skip packing
+// an operand whose layout the strided kernels can read in place (Aᵀ, or B
+// not transposed). After the first call of a given size, Gemm allocates
+// nothing.
 //
 // # Determinism
 //
@@ -60,6 +65,8 @@ import (
 	"runtime"
 	"sync"
 	"sync/atomic"
+	"time"
+	"unsafe"
 )
 
 // Float is the set of element types rhomb computes in.
@@ -91,32 +98,87 @@ const (
 var (
 	kernel64 = available64()[0]
 	kernel32 = available32()[0]
-	others64 = siblings(available64())
-	others32 = siblings(available32())
+	others64 = assembly(available64())
+	others32 = assembly(available32())
+	// onlyBest makes choose return best: the tests set it to run one
+	// kernel on every shape.
+	onlyBest = false
 )
 
-// siblings returns the kernels of ks that share the first one's name
-// (instruction set), the first one first.
-func siblings[T Float](ks []microKernel[T]) []microKernel[T] {
+// assembly returns the assembly kernels of ks, in order.
+func assembly[T Float](ks []microKernel[T]) []microKernel[T] {
 	var s []microKernel[T]
 	for _, k := range ks {
-		if k.name == ks[0].name {
+		if k.name != "go" {
 			s = append(s, k)
 		}
 	}
 	return s
 }
 
-// choose returns the kernel for an m×n product: best, unless a sibling
-// computes less than 3/4 of best's padded area (m and n rounded up to
-// whole blocks).
-func choose[T Float](best microKernel[T], others []microKernel[T], m, n int) microKernel[T] {
+// smallPick returns the index in others of the kernel with the least
+// padded area for an m×n product, then the fewest blocks, then the first.
+// It remembers its answers in memo: a small product's choice is
+// otherwise a few dozen integer divisions, a visible part of its cost.
+func smallPick[T Float](memo *pickMemo, others []microKernel[T], m, n int) int {
+	fits := m < 1<<24 && n < 1<<24
+	slot := &memo[(m*31+n)%len(memo)]
+	key := uint64(m)<<40 | uint64(n)<<16
+	if v := slot.Load(); fits && v&^0xffff == key && v&0xffff != 0 {
+		return int(v&0xffff) - 1
+	}
+	pick, pa, pn := 0, -1, 0
+	for i, c := range others {
+		a := (m + c.mr - 1) / c.mr * c.mr * ((n + c.nr - 1) / c.nr * c.nr)
+		nb := (m + c.mr - 1) / c.mr * ((n + c.nr - 1) / c.nr)
+		if pa < 0 || a < pa || a == pa && nb < pn {
+			pick, pa, pn = i, a, nb
+		}
+	}
+	if fits {
+		slot.Store(key | uint64(pick+1))
+	}
+	return pick
+}
+
+// pickMemo holds smallPick's recent answers, one per slot: m in the top
+// 24 bits, n in the next 24, the index plus one in the low 16 (0: empty).
+// A slot is one atomic word, so concurrent callers see a whole answer or
+// none; the answer depends only on m and n, so the memo cannot change a
+// result.
+type pickMemo [64]atomic.Uint64
+
+var memo64, memo32 pickMemo
+
+// choose returns the kernel for an m×n×k product.
+//
+// A large product (parallelFlops or more) uses best, unless a sibling of
+// the same instruction set computes less than 3/4 of best's padded area (m
+// and n rounded up to whole blocks): there the loop sets the time, and
+// best's loop is the fastest.
+//
+// A small product uses the assembly kernel (of either instruction set,
+// best among them first) with the least padded area, then the fewest
+// blocks, then the first in others (smallPick): there padding, edge
+// blocks (computed aside and copied) and calls set the time. On the
+// processor this was tuned on (Zen 4, which runs a 512-bit FMA as two
+// 256-bit halves: BenchmarkPeak gives the same float64 rate for both
+// instruction sets) a lane costs the same in either; on a processor with
+// full-rate 512-bit FMAs a 256-bit block costs up to twice as much per
+// lane, which may lose to a padded 512-bit block (not measured).
+func choose[T Float](best microKernel[T], others []microKernel[T], memo *pickMemo, m, n, k int) microKernel[T] {
+	if onlyBest {
+		return best
+	}
+	area := func(k microKernel[T]) int { return (m + k.mr - 1) / k.mr * k.mr * ((n + k.nr - 1) / k.nr * k.nr) }
+	if m*n*k < parallelFlops && best.name != "go" && len(others) > 0 {
+		return others[smallPick(memo, others, m, n)]
+	}
 	if m >= 8*best.mr && n >= 8*best.nr {
 		// best pads by at most 1/8 in each direction: (9/8)²·3/4 < 1, so
 		// no sibling can win.
 		return best
 	}
-	area := func(k microKernel[T]) int { return (m + k.mr - 1) / k.mr * k.mr * ((n + k.nr - 1) / k.nr * k.nr) }
 	pick, pa := best, area(best)
 	for _, k := range others {
 		if k.name != best.name {
@@ -156,9 +218,9 @@ func gemmFlags[T Float](tA, tB bool, m, n, k int, alpha T, a []T, lda int, b []T
 	}
 	switch any(alpha).(type) {
 	case float64:
-		gemm(&pool64, choose(kernel64, others64, m, n), tA, tB, m, n, k, any(alpha).(float64), any(a).([]float64), lda, any(b).([]float64), ldb, any(beta).(float64), any(c).([]float64), ldc, flags)
+		gemm(&pool64, choose(kernel64, others64, &memo64, m, n, k), tA, tB, m, n, k, any(alpha).(float64), any(a).([]float64), lda, any(b).([]float64), ldb, any(beta).(float64), any(c).([]float64), ldc, flags)
 	case float32:
-		gemm(&pool32, choose(kernel32, others32, m, n), tA, tB, m, n, k, any(alpha).(float32), any(a).([]float32), lda, any(b).([]float32), ldb, any(beta).(float32), any(c).([]float32), ldc, flags)
+		gemm(&pool32, choose(kernel32, others32, &memo32, m, n, k), tA, tB, m, n, k, any(alpha).(float32), any(a).([]float32), lda, any(b).([]float32), ldb, any(beta).(float32), any(c).([]float32), ldc, flags)
 	}
 }
 
@@ -189,10 +251,12 @@ type job[T Float] struct {
 	lda, ldb    int
 	ldc         int
 	flags       uintptr
-	tm, tn      int // tile size
+	direct      bool // small: read op(A) and op(B) in place where their layout allows
+	tm, tn      int  // tile size
 	tilesAcross int
 	tiles       int64
 	next        atomic.Int64
+	busy        atomic.Int32 // helpers still running
 	wg          sync.WaitGroup
 }
 
@@ -259,11 +323,17 @@ func plan(m, n, mr, nr, procs int) (tm, tn int) {
 }
 
 func gemm[T Float](p *pool[T], mk microKernel[T], tA, tB bool, m, n, k int, alpha T, a []T, lda int, b []T, ldb int, beta T, c []T, ldc int, flags uintptr) {
-	procs := runtime.GOMAXPROCS(0)
-	if m*n*k < parallelFlops {
-		procs = 1
+	// runtime.GOMAXPROCS takes the scheduler's lock: not for small
+	// products, which stay on this goroutine anyway.
+	procs := 1
+	if m*n*k >= parallelFlops {
+		procs = runtime.GOMAXPROCS(0)
 	}
 	tm, tn := plan(m, n, mk.mr, mk.nr, procs)
+	// A small product skips packing where an operand's layout lets the
+	// strided kernel read it in place: packing costs about as much as the
+	// arithmetic there, and buys no cache locality.
+	direct := mk.fs != nil && m*n*k < parallelFlops
 	across := (n + tn - 1) / tn
 	tiles := ((m + tm - 1) / tm) * across
 	if !p.mu.TryLock() {
@@ -272,25 +342,32 @@ func gemm[T Float](p *pool[T], mk microKernel[T], tA, tB bool, m, n, k int, alph
 			s = new(scratch[T])
 		}
 		var j job[T]
-		j.set(mk, tA, tB, m, n, k, alpha, a, lda, b, ldb, beta, c, ldc, flags, tm, tn, across, tiles)
+		j.set(mk, tA, tB, m, n, k, alpha, a, lda, b, ldb, beta, c, ldc, flags, direct, tm, tn, across, tiles)
 		j.run(s)
 		p.spare.Put(s)
 		return
 	}
 	defer p.mu.Unlock()
 	j := &p.j
-	j.set(mk, tA, tB, m, n, k, alpha, a, lda, b, ldb, beta, c, ldc, flags, tm, tn, across, tiles)
+	j.set(mk, tA, tB, m, n, k, alpha, a, lda, b, ldb, beta, c, ldc, flags, direct, tm, tn, across, tiles)
 	helpers := min(procs-1, tiles-1)
 	if helpers > 0 {
 		for p.started < helpers {
 			p.start()
 		}
 		j.wg.Add(helpers)
+		j.busy.Store(int32(helpers))
 		for range helpers {
 			p.wake <- nil
 		}
 	}
 	j.run(&p.own)
+	// Poll briefly before parking in Wait, as the workers do (spinFor):
+	// the helpers usually finish their last tile within microseconds of
+	// the caller. Wait then returns at once, and orders their writes.
+	for t0 := time.Now(); j.busy.Load() > 0 && time.Since(t0) < spinFor; {
+		runtime.Gosched()
+	}
 	j.wg.Wait()
 	// Drop references so the pool does not keep the caller's buffers alive.
 	j.a, j.b, j.c = nil, nil, nil
@@ -304,20 +381,36 @@ func (p *pool[T]) start() {
 	p.started++
 }
 
+// spinFor is how long a worker polls for the next product before it
+// parks. A training step calls Gemm several times with a little
+// elementwise work between (tens of microseconds); a parked worker takes
+// microseconds to wake (a futex call on Linux), a polling one none.
+const spinFor = 50 * time.Microsecond
+
 func (p *pool[T]) work(s *scratch[T]) {
-	for range p.wake {
+	for {
+		if len(p.wake) == 0 {
+			for t0 := time.Now(); len(p.wake) == 0 && time.Since(t0) < spinFor; {
+				runtime.Gosched()
+			}
+		}
+		if _, ok := <-p.wake; !ok {
+			return
+		}
 		p.j.run(s)
+		p.j.busy.Add(-1)
 		p.j.wg.Done()
 	}
 }
 
-func (j *job[T]) set(mk microKernel[T], tA, tB bool, m, n, k int, alpha T, a []T, lda int, b []T, ldb int, beta T, c []T, ldc int, flags uintptr, tm, tn, across, tiles int) {
+func (j *job[T]) set(mk microKernel[T], tA, tB bool, m, n, k int, alpha T, a []T, lda int, b []T, ldb int, beta T, c []T, ldc int, flags uintptr, direct bool, tm, tn, across, tiles int) {
 	j.k = mk
 	j.tA, j.tB, j.m, j.n, j.kk = tA, tB, m, n, k
 	j.alpha, j.beta = alpha, beta
 	j.a, j.b, j.c = a, b, c
 	j.lda, j.ldb, j.ldc = lda, ldb, ldc
 	j.flags = flags
+	j.direct = direct
 	j.tm, j.tn = tm, tn
 	j.tilesAcross, j.tiles = across, int64(tiles)
 	j.next.Store(0)
@@ -337,16 +430,28 @@ func (j *job[T]) run(s *scratch[T]) {
 }
 
 // tile computes the rows×cols tile of C at (i0, j0).
+//
+// With j.direct, an operand whose panels are already strided runs in
+// memory (op(A) = Aᵀ: step l of rows i0… is A[l, i0…]; op(B) = B: step l
+// of columns j0… is B[l, j0…]) and that the tile covers in whole blocks is
+// not packed: the strided kernel reads it in place. Both kernels compute
+// the same sums in the same order, so C's bits do not change.
 func (j *job[T]) tile(s *scratch[T], i0, rows, j0, cols int) {
-	mr, nr, fn := j.k.mr, j.k.nr, j.k.fn
+	mr, nr, fn, fs := j.k.mr, j.k.nr, j.k.fn, j.k.fs
 	pa, pb := (rows+mr-1)/mr, (cols+nr-1)/nr
+	directA := j.direct && j.tA && rows%mr == 0
+	directB := j.direct && !j.tB && cols%nr == 0
 	kc0 := min(kcBlock, j.kk)
 	s.size(pa*mr*kc0, pb*nr*kc0)
 	c := j.c
 	for pc := 0; pc < j.kk; pc += kcBlock {
 		kc := min(kcBlock, j.kk-pc)
-		pack(s.b[:pb*nr*kc], j.b, j.ldb, !j.tB, j0, cols, pc, kc, nr)
-		pack(s.a[:pa*mr*kc], j.a, j.lda, j.tA, i0, rows, pc, kc, mr)
+		if !directB {
+			pack(s.b[:pb*nr*kc], j.b, j.ldb, !j.tB, j0, cols, pc, kc, nr)
+		}
+		if !directA {
+			pack(s.a[:pa*mr*kc], j.a, j.lda, j.tA, i0, rows, pc, kc, mr)
+		}
 		beta, flags := j.beta, uintptr(0)
 		if pc > 0 {
 			beta = 1
@@ -357,15 +462,29 @@ func (j *job[T]) tile(s *scratch[T], i0, rows, j0, cols int) {
 			flags |= j.flags & flagReLU
 		}
 		for q := range pb {
-			bp := &s.b[q*nr*kc]
 			cj := j0 + q*nr
 			nc := min(nr, cols-q*nr)
+			bp, ldb := &s.b[0], nr
+			if directB {
+				bp, ldb = &j.b[pc*j.ldb+cj], j.ldb
+			} else {
+				bp = &s.b[q*nr*kc]
+			}
 			for p := range pa {
-				ap := &s.a[p*mr*kc]
 				ci := i0 + p*mr
 				nrow := min(mr, rows-p*mr)
+				ap, lda := &s.a[0], mr
+				if directA {
+					ap, lda = &j.a[pc*j.lda+ci], j.lda
+				} else {
+					ap = &s.a[p*mr*kc]
+				}
 				if nrow == mr && nc == nr {
-					fn(kc, ap, bp, &c[ci*j.ldc+cj], j.ldc, j.alpha, beta, flags)
+					if j.direct {
+						fs(kc, ap, bp, &c[ci*j.ldc+cj], j.ldc, j.alpha, beta, flags, lda, ldb)
+					} else {
+						fn(kc, ap, bp, &c[ci*j.ldc+cj], j.ldc, j.alpha, beta, flags)
+					}
 					continue
 				}
 				// An edge block: compute it whole in s.c, with the same
@@ -377,7 +496,11 @@ func (j *job[T]) tile(s *scratch[T], i0, rows, j0, cols int) {
 						copy(e[r*nr:r*nr+nc], c[(ci+r)*j.ldc+cj:])
 					}
 				}
-				fn(kc, ap, bp, &e[0], nr, j.alpha, beta, flags)
+				if j.direct {
+					fs(kc, ap, bp, &e[0], nr, j.alpha, beta, flags, lda, ldb)
+				} else {
+					fn(kc, ap, bp, &e[0], nr, j.alpha, beta, flags)
+				}
 				for r := range nrow {
 					copy(c[(ci+r)*j.ldc+cj:(ci+r)*j.ldc+cj+nc], e[r*nr:])
 				}
@@ -422,10 +545,8 @@ func pack[T Float](dst, x []T, ld int, trans bool, i0, rows, pc, kc, w int) {
 		for _, tb := range transposeBlocks[T]() {
 			for ; done+tb <= n; done += tb {
 				off := (i0+p*w+done)*ld + pc
-				l := 0
-				for ; l+tb <= kc; l += tb {
-					transpose(x[off+l:], ld, panel[l*w+done:], w, tb)
-				}
+				l := kc / tb * tb
+				transposeRun(x[off:], ld, panel[done:], w, tb, kc/tb)
 				for r := range tb {
 					src := x[off+r*ld+l : off+r*ld+kc]
 					for ll, v := range src {
@@ -503,23 +624,34 @@ func transposeBlocks[T Float]() []int {
 
 var blocks32, blocks64 = []int{8, 4}, []int{4}
 
-// transpose writes the transpose of the tb×tb block at src (row stride
-// lds) to dst (row stride ldd); the slices start at the blocks' first
-// elements.
-func transpose[T Float](src []T, lds int, dst []T, ldd, tb int) {
+// transposeRun transposes nb side-by-side tb×tb blocks: block q, at
+// src[q·tb:] (row stride lds), to dst[q·tb·ldd:] (row stride ldd). The
+// bounds are checked once for the whole run and the type switched on
+// once: per 4×4 block, a check and a switch cost as much as the transpose.
+func transposeRun[T Float](src []T, lds int, dst []T, ldd, tb, nb int) {
+	if nb == 0 {
+		return
+	}
 	switch s := any(src).(type) {
 	case []float32:
 		d := any(dst).([]float32)
-		_, _ = s[(tb-1)*lds+tb-1], d[(tb-1)*ldd+tb-1] // bounds, checked once
-		if tb == 8 {
-			transpose8x8F32(&s[0], lds, &d[0], ldd)
-		} else {
-			transpose4x4F32(&s[0], lds, &d[0], ldd)
+		_, _ = s[(tb-1)*lds+nb*tb-1], d[(nb*tb-1)*ldd+tb-1] // bounds, checked once
+		ps, pd := unsafe.Pointer(&s[0]), unsafe.Pointer(&d[0])
+		for q := range nb {
+			sp, dp := (*float32)(unsafe.Add(ps, q*tb*4)), (*float32)(unsafe.Add(pd, q*tb*ldd*4))
+			if tb == 8 {
+				transpose8x8F32(sp, lds, dp, ldd)
+			} else {
+				transpose4x4F32(sp, lds, dp, ldd)
+			}
 		}
 	case []float64:
 		d := any(dst).([]float64)
-		_, _ = s[3*lds+3], d[3*ldd+3]
-		transpose4x4F64(&s[0], lds, &d[0], ldd)
+		_, _ = s[3*lds+nb*4-1], d[(nb*4-1)*ldd+3]
+		ps, pd := unsafe.Pointer(&s[0]), unsafe.Pointer(&d[0])
+		for q := range nb {
+			transpose4x4F64((*float64)(unsafe.Add(ps, q*32)), lds, (*float64)(unsafe.Add(pd, q*4*ldd*8)), ldd)
+		}
 	}
 }
 

@@ -27,11 +27,19 @@ const (
 // give exactly these bits; TestKernelsBitExact checks it.
 type kernelFunc[T Float] func(kc int, a, b, c *T, ldc int, alpha, beta T, flags uintptr)
 
-// microKernel is a kernel with its block shape.
+// stridedFunc is a kernelFunc that reads op(A) and op(B) in place: step l
+// of the A panel starts lda elements after step l−1, and of the B panel
+// ldb elements after (a packed panel is the case lda = mr, ldb = nr). The
+// arithmetic, and so every bit of C, is that of kernelFunc.
+type stridedFunc[T Float] func(kc int, a, b, c *T, ldc int, alpha, beta T, flags uintptr, lda, ldb int)
+
+// microKernel is a kernel with its block shape, and its strided variant
+// (nil for the pure-Go kernel).
 type microKernel[T Float] struct {
 	name   string
 	mr, nr int
 	fn     kernelFunc[T]
+	fs     stridedFunc[T]
 }
 
 // generic returns the pure-Go kernel for an mr×nr block. It is the

@@ -37,6 +37,78 @@ func kernAVX2F64x4(kc int, a, b, c *float64, ldc int, alpha, beta float64, flags
 //go:noescape
 func kernAVX2F32x4(kc int, a, b, c *float32, ldc int, alpha, beta float32, flags uintptr)
 
+// The small blocks (8×16, 4×32 and 8×4 in float64; 8×32, 4×32 and 8×8 in
+// float32), which choose takes for small products that they tile with
+// less padding.
+//
+//go:noescape
+func kernAVX512F64m8n16(kc int, a, b, c *float64, ldc int, alpha, beta float64, flags uintptr)
+
+//go:noescape
+func kernAVX512F64m4n32(kc int, a, b, c *float64, ldc int, alpha, beta float64, flags uintptr)
+
+//go:noescape
+func kernAVX2F64m8n4(kc int, a, b, c *float64, ldc int, alpha, beta float64, flags uintptr)
+
+//go:noescape
+func kernAVX512F32m8n32(kc int, a, b, c *float32, ldc int, alpha, beta float32, flags uintptr)
+
+//go:noescape
+func kernAVX512F32m4n32(kc int, a, b, c *float32, ldc int, alpha, beta float32, flags uintptr)
+
+//go:noescape
+func kernAVX2F32m8n8(kc int, a, b, c *float32, ldc int, alpha, beta float32, flags uintptr)
+
+// The strided variants (name + "S") of the kernels above: the same
+// arithmetic, reading op(A) and op(B) in place with row strides lda and
+// ldb (elements from one step l to the next) instead of from packed
+// panels.
+//
+//go:noescape
+func kernAVX2F64S(kc int, a, b, c *float64, ldc int, alpha, beta float64, flags uintptr, lda, ldb int)
+
+//go:noescape
+func kernAVX2F32S(kc int, a, b, c *float32, ldc int, alpha, beta float32, flags uintptr, lda, ldb int)
+
+//go:noescape
+func kernAVX512F64S(kc int, a, b, c *float64, ldc int, alpha, beta float64, flags uintptr, lda, ldb int)
+
+//go:noescape
+func kernAVX512F32S(kc int, a, b, c *float32, ldc int, alpha, beta float32, flags uintptr, lda, ldb int)
+
+//go:noescape
+func kernAVX512F64x12S(kc int, a, b, c *float64, ldc int, alpha, beta float64, flags uintptr, lda, ldb int)
+
+//go:noescape
+func kernAVX512F32x12S(kc int, a, b, c *float32, ldc int, alpha, beta float32, flags uintptr, lda, ldb int)
+
+//go:noescape
+func kernAVX512F32x16S(kc int, a, b, c *float32, ldc int, alpha, beta float32, flags uintptr, lda, ldb int)
+
+//go:noescape
+func kernAVX2F64x4S(kc int, a, b, c *float64, ldc int, alpha, beta float64, flags uintptr, lda, ldb int)
+
+//go:noescape
+func kernAVX2F32x4S(kc int, a, b, c *float32, ldc int, alpha, beta float32, flags uintptr, lda, ldb int)
+
+//go:noescape
+func kernAVX512F64m8n16S(kc int, a, b, c *float64, ldc int, alpha, beta float64, flags uintptr, lda, ldb int)
+
+//go:noescape
+func kernAVX512F64m4n32S(kc int, a, b, c *float64, ldc int, alpha, beta float64, flags uintptr, lda, ldb int)
+
+//go:noescape
+func kernAVX2F64m8n4S(kc int, a, b, c *float64, ldc int, alpha, beta float64, flags uintptr, lda, ldb int)
+
+//go:noescape
+func kernAVX512F32m8n32S(kc int, a, b, c *float32, ldc int, alpha, beta float32, flags uintptr, lda, ldb int)
+
+//go:noescape
+func kernAVX512F32m4n32S(kc int, a, b, c *float32, ldc int, alpha, beta float32, flags uintptr, lda, ldb int)
+
+//go:noescape
+func kernAVX2F32m8n8S(kc int, a, b, c *float32, ldc int, alpha, beta float32, flags uintptr, lda, ldb int)
+
 // transpose8x8F32 and transpose4x4F64 write the transpose of a square
 // block: dst[l·ldd + r] = src[r·lds + l]. They need AVX (implied by AVX2).
 //
@@ -87,12 +159,15 @@ func peakAVX512(n int)
 func available64() []microKernel[float64] {
 	var ks []microKernel[float64]
 	if hasAVX512() {
-		ks = append(ks, microKernel[float64]{name: "avx512", mr: 12, nr: 16, fn: kernAVX512F64x12},
-			microKernel[float64]{name: "avx512", mr: 8, nr: 24, fn: kernAVX512F64})
+		ks = append(ks, microKernel[float64]{name: "avx512", mr: 12, nr: 16, fn: kernAVX512F64x12, fs: kernAVX512F64x12S},
+			microKernel[float64]{name: "avx512", mr: 8, nr: 24, fn: kernAVX512F64, fs: kernAVX512F64S},
+			microKernel[float64]{name: "avx512", mr: 8, nr: 16, fn: kernAVX512F64m8n16, fs: kernAVX512F64m8n16S},
+			microKernel[float64]{name: "avx512", mr: 4, nr: 32, fn: kernAVX512F64m4n32, fs: kernAVX512F64m4n32S})
 	}
 	if hasAVX2() {
-		ks = append(ks, microKernel[float64]{name: "avx2", mr: 6, nr: 8, fn: kernAVX2F64},
-			microKernel[float64]{name: "avx2", mr: 4, nr: 12, fn: kernAVX2F64x4})
+		ks = append(ks, microKernel[float64]{name: "avx2", mr: 6, nr: 8, fn: kernAVX2F64, fs: kernAVX2F64S},
+			microKernel[float64]{name: "avx2", mr: 4, nr: 12, fn: kernAVX2F64x4, fs: kernAVX2F64x4S},
+			microKernel[float64]{name: "avx2", mr: 8, nr: 4, fn: kernAVX2F64m8n4, fs: kernAVX2F64m8n4S})
 	}
 	return append(ks, generic[float64](4, 8))
 }
@@ -100,13 +175,16 @@ func available64() []microKernel[float64] {
 func available32() []microKernel[float32] {
 	var ks []microKernel[float32]
 	if hasAVX512() {
-		ks = append(ks, microKernel[float32]{name: "avx512", mr: 12, nr: 32, fn: kernAVX512F32x12},
-			microKernel[float32]{name: "avx512", mr: 8, nr: 48, fn: kernAVX512F32},
-			microKernel[float32]{name: "avx512", mr: 16, nr: 16, fn: kernAVX512F32x16})
+		ks = append(ks, microKernel[float32]{name: "avx512", mr: 12, nr: 32, fn: kernAVX512F32x12, fs: kernAVX512F32x12S},
+			microKernel[float32]{name: "avx512", mr: 8, nr: 48, fn: kernAVX512F32, fs: kernAVX512F32S},
+			microKernel[float32]{name: "avx512", mr: 16, nr: 16, fn: kernAVX512F32x16, fs: kernAVX512F32x16S},
+			microKernel[float32]{name: "avx512", mr: 8, nr: 32, fn: kernAVX512F32m8n32, fs: kernAVX512F32m8n32S},
+			microKernel[float32]{name: "avx512", mr: 4, nr: 32, fn: kernAVX512F32m4n32, fs: kernAVX512F32m4n32S})
 	}
 	if hasAVX2() {
-		ks = append(ks, microKernel[float32]{name: "avx2", mr: 6, nr: 16, fn: kernAVX2F32},
-			microKernel[float32]{name: "avx2", mr: 4, nr: 24, fn: kernAVX2F32x4})
+		ks = append(ks, microKernel[float32]{name: "avx2", mr: 6, nr: 16, fn: kernAVX2F32, fs: kernAVX2F32S},
+			microKernel[float32]{name: "avx2", mr: 4, nr: 24, fn: kernAVX2F32x4, fs: kernAVX2F32x4S},
+			microKernel[float32]{name: "avx2", mr: 8, nr: 8, fn: kernAVX2F32m8n8, fs: kernAVX2F32m8n8S})
 	}
 	return append(ks, generic[float32](4, 8))
 }

@@ -36,8 +36,12 @@ func kernelsOf[T Float]() []microKernel[T] {
 	return ks
 }
 
-// withKernel runs f with Gemm using mk for T.
+// withKernel runs f with Gemm using mk for T, on every shape (choose
+// takes no other kernel meanwhile).
 func withKernel[T Float](mk microKernel[T], f func()) {
+	oldOnly := onlyBest
+	onlyBest = true
+	defer func() { onlyBest = oldOnly }()
 	switch v := any(mk).(type) {
 	case microKernel[float32]:
 		old := kernel32
@@ -184,7 +188,8 @@ func TestFma32(t *testing.T) {
 // package doc, bit for bit, computed element by element with math/big:
 // every transposition, several alpha and beta (beta = 0 with NaN in C),
 // with and without the ReLU, on shapes that leave edge blocks in both
-// directions and cross the kcBlock boundary (k = 257, 513).
+// directions and cross the kcBlock boundary (k = 257, 513), and on shapes
+// of whole blocks, where small products read operands in place.
 func TestKernelsBitExact(t *testing.T) {
 	t.Run("float=64", testBitExact[float64])
 	t.Run("float=32", testBitExact[float32])
@@ -197,8 +202,15 @@ func testBitExact[T Float](t *testing.T) {
 		shapes = shapes[:3]
 	}
 	for _, mk := range kernelsOf[T]() {
+		// Whole blocks, small enough for the direct path of tile (which
+		// reads Aᵀ and B in place), across a kcBlock boundary in the
+		// last, so that the in-place panels start mid-matrix.
+		direct := [][3]int{{mk.mr, mk.nr, 1}, {2 * mk.mr, 2 * mk.nr, 7}, {mk.mr, 2 * mk.nr, 300}}
+		if mk.mr*2*mk.nr*300 >= parallelFlops {
+			panic("direct shapes too large for the direct path")
+		}
 		withKernel(mk, func() {
-			for si, sh := range shapes {
+			for si, sh := range append(shapes, direct...) {
 				m, n, k := sh[0], sh[1], sh[2]
 				la, lb := draw[T](rng, m*k), draw[T](rng, k*n)
 				pads := [3]int{si % 3, (si + 1) % 3, (si + 2) % 3}
@@ -322,6 +334,41 @@ func testReLU[T Float](t *testing.T) {
 			}
 			if bitsOf(dx[i]) != bitsOf(wantDx) {
 				t.Errorf("n=%d: ReLUMask dx[%d] = %v, want %v", n, i, dx[i], wantDx)
+			}
+		}
+	}
+}
+
+// TestSmallPickMemo checks that smallPick's memo never changes its answer:
+// every (m, n) up to 70 asked twice of one shared memo (so slots are
+// overwritten by colliding shapes) gives the answer of a fresh memo, and
+// that answer has the least padded area over all the kernels (the rule in
+// choose's doc, recomputed here by brute force).
+func TestSmallPickMemo(t *testing.T) {
+	ks := assembly(available64())
+	if len(ks) == 0 {
+		t.Skip("no assembly kernels in this build")
+	}
+	var shared pickMemo
+	for round := range 2 {
+		for m := 1; m <= 70; m++ {
+			for n := 1; n <= 70; n++ {
+				var fresh pickMemo
+				want := smallPick(&fresh, ks, m, n)
+				if got := smallPick(&shared, ks, m, n); got != want {
+					t.Fatalf("round %d, m=%d n=%d: memo gives kernel %d, fresh %d", round, m, n, got, want)
+				}
+				least := -1
+				for _, k := range ks {
+					a := (m + k.mr - 1) / k.mr * k.mr * ((n + k.nr - 1) / k.nr * k.nr)
+					if least < 0 || a < least {
+						least = a
+					}
+				}
+				k := ks[want]
+				if a := (m + k.mr - 1) / k.mr * k.mr * ((n + k.nr - 1) / k.nr * k.nr); a != least {
+					t.Fatalf("m=%d n=%d: picked %s with area %d, least is %d", m, n, kernelName(k), a, least)
+				}
 			}
 		}
 	}
