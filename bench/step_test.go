@@ -10,6 +10,7 @@ import (
 	"gonum.org/v1/gonum/mat"
 
 	"github.com/rhomb/rhomb/data"
+	"github.com/rhomb/rhomb/internal/kern"
 	"github.com/rhomb/rhomb/loss"
 	"github.com/rhomb/rhomb/net"
 	"github.com/rhomb/rhomb/optim"
@@ -88,11 +89,12 @@ func (s *step[T]) grads() float64 {
 	return l
 }
 
+// update is the trainer's noiseless update without decay (kern.Update,
+// which optim.Trainer calls), so that rhomb's step times rhomb's update:
+// spread over the cores for the large weight matrices.
 func (s *step[T]) update() {
 	for _, p := range s.n.Params() {
-		for j, g := range p.Grad {
-			p.Value[j] -= lr * g
-		}
+		kern.Update(p.Value, p.Grad, nil, lr, 0, 0, false)
 	}
 }
 

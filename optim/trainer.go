@@ -9,6 +9,7 @@ import (
 	"time"
 
 	"github.com/rhomb/rhomb/data"
+	"github.com/rhomb/rhomb/internal/kern"
 	"github.com/rhomb/rhomb/loss"
 	"github.com/rhomb/rhomb/net"
 )
@@ -350,8 +351,11 @@ func (t *Trainer[T]) update(lr float64) error {
 		}
 		j := -1
 		switch {
-		case v == nil && sigma == 0:
-			j = stepPlain(p.Value, p.Grad, lr, d)
+		case sigma == 0:
+			// Without noise the elements are independent: kern.Update
+			// spreads a large parameter over the cores, with the same
+			// expressions as the loops below, so the same bits.
+			j = kern.Update(p.Value, p.Grad, v, lr, d, mu, t.s.Nesterov)
 		case v == nil:
 			j = stepNoisy(p.Value, p.Grad, lr, d, sigma, t.noiseRNG)
 		default:
@@ -380,23 +384,11 @@ func (t *Trainer[T]) update(lr float64) error {
 //
 // in that order, so every variant gives the bits the general one would;
 // they exist so that the common cases run without per-element branches.
+// The steps without noise are kern.Update (the same expressions, spread
+// over the cores for large parameters); the noisy ones stay serial here,
+// since the noise is one sequential stream.
 // Each returns the index of the first updated value that is not finite,
 // or −1.
-
-func stepPlain[T net.Float](val, grad []T, lr, d float64) int {
-	bad := -1
-	grad = grad[:len(val)]
-	for j, gj := range grad {
-		theta := float64(val[j])
-		theta -= lr * (float64(gj) + d*theta)
-		nv := T(theta)
-		if notFinite(nv) && bad < 0 {
-			bad = j
-		}
-		val[j] = nv
-	}
-	return bad
-}
 
 func stepNoisy[T net.Float](val, grad []T, lr, d, sigma float64, rng *rand.Rand) int {
 	bad := -1

@@ -26,8 +26,9 @@
 // blocks in registers where the operand's layout needs it. Building with
 // -tags noasm, or for another architecture, leaves only the pure-Go code.
 //
-// Large products are spread over a fixed pool of workers that live for the
-// whole process; each worker claims whole tiles, and between products
+// Large products, and large weight updates (Update), are spread over a
+// fixed pool of workers that live for the whole process; each worker
+// claims whole tiles (or chunks of an update), and between products
 // polls for the next one for spinFor before parking, so that the products
 // of one training step do not each pay a wake-up. Small products, and every
 // product when GOMAXPROCS is 1, run on the caller's goroutine; they take
@@ -258,6 +259,8 @@ type job[T Float] struct {
 	next        atomic.Int64
 	busy        atomic.Int32 // helpers still running
 	wg          sync.WaitGroup
+	upd         updateJob[T] // set (upd.on) while the pool runs an Update instead
+	bad         atomic.Int64 // an Update's smallest non-finite index so far
 }
 
 // scratch is one goroutine's packing buffers.
@@ -397,7 +400,11 @@ func (p *pool[T]) work(s *scratch[T]) {
 		if _, ok := <-p.wake; !ok {
 			return
 		}
-		p.j.run(s)
+		if p.j.upd.on {
+			p.j.runUpdate()
+		} else {
+			p.j.run(s)
+		}
 		p.j.busy.Add(-1)
 		p.j.wg.Done()
 	}
