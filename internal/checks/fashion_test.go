@@ -9,7 +9,6 @@ import (
 	"github.com/rhomb/rhomb/data/prep"
 	"github.com/rhomb/rhomb/internal/opendata"
 	"github.com/rhomb/rhomb/loss"
-	"github.com/rhomb/rhomb/net"
 	"github.com/rhomb/rhomb/net/modelfile"
 	"github.com/rhomb/rhomb/normalize"
 	"github.com/rhomb/rhomb/optim"
@@ -149,17 +148,7 @@ func TestFashionMNIST(t *testing.T) {
 	for _, lf := range []loss.Func[float32]{loss.Square[float32]{}, loss.CrossEntropy[float32]{}} {
 		t.Run(lf.Name(), func(t *testing.T) {
 			begin := time.Now()
-			n, err := net.NewBuilder[float32](train.Features).
-				ConstantFeature("one").
-				Dense("hidden", 100).ReLU("relu").
-				Readout("readout", train.Outputs).
-				Build()
-			if err != nil {
-				t.Fatal(err)
-			}
-			if err := n.Init(net.InitSettings{Scheme: net.HeNormal, Rho0: 0.1, Seed: 1}); err != nil {
-				t.Fatal(err)
-			}
+			n := oneHidden[float32](t, train.Features, 100, train.Outputs, 0.1, 1)
 			wn, err := normalize.Wrap(n, normalize.Options{Scale: normalize.PerLayer})
 			if err != nil {
 				t.Fatal(err)

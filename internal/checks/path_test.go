@@ -118,3 +118,22 @@ func serveRoundTrip[T net.Float](t *testing.T, m *modelfile.Model[T], test *data
 func rowsOf(raw [][]string, rows []int) func(i int) []string {
 	return func(i int) []string { return raw[rows[i]] }
 }
+
+// oneHidden builds the network every check here trains: the constant-one
+// feature, one ReLU layer of width units and a linear readout, He-normal
+// weights at scale rho0 (0: the scheme's own) from seed.
+func oneHidden[T net.Float](t *testing.T, in, width, out int, rho0 float64, seed uint64) *net.Network[T] {
+	t.Helper()
+	n, err := net.NewBuilder[T](in).
+		ConstantFeature("one").
+		Dense("hidden", width).ReLU("relu").
+		Readout("readout", out).
+		Build()
+	if err != nil {
+		t.Fatal(err)
+	}
+	if err := n.Init(net.InitSettings{Scheme: net.HeNormal, Rho0: rho0, Seed: seed}); err != nil {
+		t.Fatal(err)
+	}
+	return n
+}

@@ -10,7 +10,6 @@ import (
 	"github.com/rhomb/rhomb/data/prep"
 	"github.com/rhomb/rhomb/internal/opendata"
 	"github.com/rhomb/rhomb/loss"
-	"github.com/rhomb/rhomb/net"
 	"github.com/rhomb/rhomb/net/modelfile"
 	"github.com/rhomb/rhomb/normalize"
 	"github.com/rhomb/rhomb/optim"
@@ -124,17 +123,7 @@ func TestPenguinsSpecies(t *testing.T) {
 		t.Fatal(err)
 	}
 
-	n, err := net.NewBuilder[float32](train.Features).
-		ConstantFeature("one").
-		Dense("hidden", 16).ReLU("relu").
-		Readout("readout", train.Outputs).
-		Build()
-	if err != nil {
-		t.Fatal(err)
-	}
-	if err := n.Init(net.InitSettings{Scheme: net.HeNormal, Rho0: 0.1, Seed: 1}); err != nil {
-		t.Fatal(err)
-	}
+	n := oneHidden[float32](t, train.Features, 16, train.Outputs, 0.1, 1)
 	wn, err := normalize.Wrap(n, normalize.Options{Scale: normalize.PerLayer})
 	if err != nil {
 		t.Fatal(err)
