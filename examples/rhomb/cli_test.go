@@ -195,7 +195,7 @@ func TestBadFlags(t *testing.T) {
 		pieces []string
 	}{
 		{"not a number", []string{"train", "-data", csv, "-label", "state", "-epochs", "x", "-o", out}, []string{"-epochs", `"x"`}},
-		{"no epochs", []string{"train", "-data", csv, "-label", "state", "-epochs", "0", "-o", out}, []string{"-epochs 0"}},
+		{"negative epochs", []string{"train", "-data", csv, "-label", "state", "-epochs", "-1", "-o", out}, []string{"-epochs -1"}},
 		{"missing policy", []string{"train", "-data", csv, "-label", "state", "-missing", "guess", "-o", out}, []string{"-missing", `"guess"`}},
 		{"float size", []string{"train", "-data", csv, "-label", "state", "-float", "16", "-o", out}, []string{"-float 16"}},
 		{"hidden width", []string{"train", "-data", csv, "-label", "state", "-hidden", "8,0", "-o", out}, []string{"-hidden", `"0"`}},

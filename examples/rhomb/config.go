@@ -12,6 +12,7 @@ import (
 	"github.com/rhomb/rhomb/net"
 	"github.com/rhomb/rhomb/normalize"
 	"github.com/rhomb/rhomb/optim"
+	"github.com/rhomb/rhomb/optim/recipe"
 )
 
 // config is everything a training run depends on. It is stored in the
@@ -55,12 +56,26 @@ type config struct {
 	Temp     float64 `json:"temperature"`
 	Target   float64 `json:"target_loss,omitempty"`
 	Seed     uint64  `json:"seed"`
+	// The training procedure (optim/recipe): the step factor when the
+	// learning rate is measured, the warm-up, the patience, the metric the
+	// epochs are ranked by, and whether a degenerate model fails the run.
+	StepFactor float64 `json:"step_factor,omitempty"`
+	Warmup     int     `json:"warmup"`
+	Patience   int     `json:"patience"`
+	Metric     string  `json:"metric"`
+	Strict     bool    `json:"strict,omitempty"`
 }
 
+// defaultConfig is the command line's defaults: the training procedure's
+// own (recipe.Defaults, chosen by the benchmark suite), spelled as flags.
+// Epochs 0 and patience 0 mean the procedure's defaults, which stretch on
+// small training sets (recipe.MinSteps, recipe.PatienceSteps).
 func defaultConfig() config {
-	return config{Missing: "fail", Holdout: 0.2, Hidden: []int{64, 64}, Activation: "relu", Init: "he", Rho0: 0.1,
-		Norm: "global", Hold: "multiplier", Float: 32, Loss: "square", LR: 0.05, Schedule: "constant",
-		Batch: 32, Draw: "shuffled", Epochs: 100, Decay: 1e-3, Seed: 1}
+	d := recipe.Defaults()
+	return config{Missing: "impute", Holdout: 0.2, Hidden: d.Hidden, Activation: "relu", Init: "he", Rho0: d.Rho0,
+		Norm: d.Norm.String(), Hold: "multiplier", Float: 32, Loss: "square", LR: 0, Schedule: "warm-cosine",
+		Batch: d.Batch, Draw: "shuffled", Momentum: d.Momentum, Epochs: 0, Decay: d.Decay, Seed: 1,
+		StepFactor: d.StepFactor, Warmup: d.Warmup, Patience: 0, Metric: d.Metric.String()}
 }
 
 // bind registers the flags that set c.
@@ -72,7 +87,7 @@ func (c *config) bind(fs *flag.FlagSet) {
 	c.Kinds = map[string]string{}
 	fs.Var(mapFlag(c.Kinds), "kind", "force column kinds: `name=numeric|categorical`, comma-separated or repeated")
 	fs.Var((*listFlag)(&c.Skip), "skip", "comma-separated `columns` to leave out")
-	fs.StringVar(&c.Missing, "missing", c.Missing, "what to do with missing cells: `fail|drop|impute` (impute: mean or most frequent of the training rows)")
+	fs.StringVar(&c.Missing, "missing", c.Missing, "what to do with missing cells: `impute|drop|fail` (impute: mean or most frequent level of the training rows)")
 	fs.Var((*listFlag)(&c.Markers), "na", "comma-separated cell `values` that mean missing (default \"\",NA,NaN,null)")
 	fs.BoolVar(&c.UnitNorm, "unit-norm", c.UnitNorm, "scale every input row to unit length after encoding")
 	fs.BoolVar(&c.NewAsNil, "unknown-zero", c.NewAsNil, "encode a category unseen in training as all zeros instead of failing")
@@ -89,13 +104,18 @@ func (c *config) bind(fs *flag.FlagSet) {
 	fs.IntVar(&c.Float, "float", c.Float, "arithmetic: `32|64` bits")
 	fs.StringVar(&c.Loss, "loss", c.Loss, "`square|rescaled:K:M|cross-entropy|logistic|exponential`")
 	fs.BoolVar(&c.Balance, "balance", c.Balance, "weight each class inversely to its frequency")
-	fs.Float64Var(&c.LR, "lr", c.LR, "learning `rate` η")
-	fs.StringVar(&c.Schedule, "schedule", c.Schedule, "learning-rate schedule: `constant|step:EPOCHS:FACTOR|cosine:FLOOR`")
+	fs.Float64Var(&c.LR, "lr", c.LR, "learning `rate` η (0: measured, -step-factor × the stability threshold of the loss curvature)")
+	fs.Float64Var(&c.StepFactor, "step-factor", c.StepFactor, "with a measured rate, η = `factor` × 2(1+μ)/λ_max, λ_max the largest curvature on 512 training rows")
+	fs.StringVar(&c.Schedule, "schedule", c.Schedule, "learning-rate schedule: `warm-cosine|constant|step:EPOCHS:FACTOR|cosine:FLOOR` (warm-cosine: linear warm-up over -warmup epochs, then cosine to 1%)")
+	fs.IntVar(&c.Warmup, "warmup", c.Warmup, "`epochs` of linear warm-up from η/10 (warm-cosine schedule)")
 	fs.IntVar(&c.Batch, "batch", c.Batch, "`rows` per step (0: the whole training set)")
 	fs.StringVar(&c.Draw, "draw", c.Draw, "minibatches: `shuffled` epochs or independent draws with replacement")
 	fs.Float64Var(&c.Momentum, "momentum", c.Momentum, "heavy-ball momentum `μ` in [0, 1)")
 	fs.BoolVar(&c.Nesterov, "nesterov", c.Nesterov, "use Nesterov momentum")
-	fs.IntVar(&c.Epochs, "epochs", c.Epochs, "`epochs` to train")
+	fs.IntVar(&c.Epochs, "epochs", c.Epochs, "most `epochs` to train (0: 100, more on small sets so that the run takes 3000 steps)")
+	fs.IntVar(&c.Patience, "patience", c.Patience, "stop after `N` epochs without a better validation score (0: 15, more on small sets; -1 never)")
+	fs.StringVar(&c.Metric, "metric", c.Metric, "rank epochs on the validation rows by `accuracy|balanced` accuracy; ties go to the larger minimum margin")
+	fs.BoolVar(&c.Strict, "strict", c.Strict, "fail (exit 1) when the chosen model is degenerate: one class only, no better than the majority class, or a class never recognized")
 	fs.Float64Var(&c.Decay, "decay", c.Decay, "weight decay `λ` (on the scales when normalized)")
 	fs.Float64Var(&c.Temp, "temp", c.Temp, "Langevin `temperature` T: noise √(2ηT) per step")
 	fs.Float64Var(&c.Target, "target-loss", c.Target, "stop once an epoch's mean loss is at most this `loss`")
@@ -119,8 +139,15 @@ func (c *config) check() error {
 		return bad("train: -holdout %v and -test %v must be fractions summing to less than 1", c.Holdout, c.Test)
 	case c.Float != 32 && c.Float != 64:
 		return bad("train: -float %d: want 32 or 64", c.Float)
-	case c.Epochs < 1:
-		return bad("train: -epochs %d: want at least 1", c.Epochs)
+	case c.Epochs < 0:
+		return bad("train: -epochs %d: want 0 (the default) or a number of epochs", c.Epochs)
+	case c.LR < 0:
+		return bad("train: -lr %v: want 0 (measured) or a positive rate", c.LR)
+	case !(c.StepFactor > 0 && c.StepFactor <= 1):
+		return bad("train: -step-factor %v: want a fraction in (0, 1]", c.StepFactor)
+	}
+	if _, err := recipe.ParseMetric(c.Metric); err != nil {
+		return bad("train: -metric: %v", err)
 	}
 	for name, k := range c.Kinds {
 		if k != "numeric" && k != "categorical" {
@@ -254,30 +281,67 @@ func makeLoss[T net.Float](c *config, outputs int, weights []float64) (loss.Func
 	return l, nil
 }
 
-func (c *config) settings() (optim.Settings, error) {
-	s := optim.Settings{LearningRate: c.LR, BatchSize: c.Batch, Momentum: c.Momentum, Nesterov: c.Nesterov,
-		WeightDecay: c.Decay, Temperature: c.Temp, Epochs: c.Epochs, TargetLoss: c.Target, Seed: c.Seed}
+// baseSettings describes the settings a sweep's points share, for its
+// fingerprint and results file; the points themselves run the training
+// procedure with plan.
+func (c *config) baseSettings() (optim.Settings, error) {
+	p, err := c.plan()
+	if err != nil {
+		return optim.Settings{}, err
+	}
+	s := optim.Settings{LearningRate: c.LR, BatchSize: c.Batch, Sampling: p.Sampling, Momentum: c.Momentum, Nesterov: c.Nesterov,
+		WeightDecay: c.Decay, Temperature: c.Temp, Epochs: c.Epochs, TargetLoss: c.Target, Seed: c.Seed, Schedule: p.Schedule}
+	if s.Schedule == nil {
+		s.Schedule = optim.Cosine{Floor: recipe.Defaults().Floor} // the warm-up is recorded with the config
+	}
+	return s, nil
+}
+
+// plan is the training procedure's plan for these settings.
+func (c *config) plan() (recipe.Plan, error) {
+	m, err := recipe.ParseMetric(c.Metric)
+	if err != nil {
+		return recipe.Plan{}, usageError{fmt.Errorf("train: -metric: %w", err)}
+	}
+	p := recipe.Plan{Hidden: c.Hidden, Rho0: c.Rho0, Batch: c.Batch, Momentum: c.Momentum, Decay: c.Decay,
+		LearningRate: c.LR, StepFactor: c.StepFactor, Warmup: c.Warmup, Epochs: c.Epochs, Patience: c.Patience,
+		Metric: m, Seed: c.Seed, Strict: c.Strict, Temperature: c.Temp, Nesterov: c.Nesterov, TargetLoss: c.Target}
+	// Zero means "the default" to a Plan and "none" on the command line.
+	if c.Momentum == 0 {
+		p.Momentum = -1
+	}
+	if c.Decay == 0 {
+		p.Decay = -1
+	}
+	if c.Warmup == 0 {
+		p.Warmup = -1
+	}
+	if c.Batch == 0 {
+		p.Batch = math.MaxInt32 // the whole training set
+	}
 	switch c.Draw {
 	case "shuffled":
 	case "independent":
-		s.Sampling = optim.Independent
+		p.Sampling = optim.Independent
 	default:
-		return s, usageError{fmt.Errorf("train: -draw %q: want shuffled or independent", c.Draw)}
+		return p, usageError{fmt.Errorf("train: -draw %q: want shuffled or independent", c.Draw)}
 	}
 	name, args, err := split(c.Schedule)
 	if err != nil {
-		return s, usageError{fmt.Errorf("train: -schedule %w", err)}
+		return p, usageError{fmt.Errorf("train: -schedule %w", err)}
 	}
 	switch {
+	case name == "warm-cosine" && len(args) == 0:
 	case name == "constant" && len(args) == 0:
+		p.Schedule = optim.Constant{}
 	case name == "step" && len(args) == 2 && args[0] >= 1:
-		s.Schedule = optim.StepDecay{Epochs: int(args[0]), By: args[1]}
+		p.Schedule = optim.StepDecay{Epochs: int(args[0]), By: args[1]}
 	case name == "cosine" && len(args) == 1:
-		s.Schedule = optim.Cosine{Floor: args[0]}
+		p.Schedule = optim.Cosine{Floor: args[0]}
 	default:
-		return s, usageError{fmt.Errorf("train: -schedule %q: want constant, step:EPOCHS:FACTOR or cosine:FLOOR", c.Schedule)}
+		return p, usageError{fmt.Errorf("train: -schedule %q: want warm-cosine, constant, step:EPOCHS:FACTOR or cosine:FLOOR", c.Schedule)}
 	}
-	return s, nil
+	return p, nil
 }
 
 func joinClasses(c []string) string { return strings.Join(c, ", ") }

@@ -9,6 +9,7 @@ import (
 	"github.com/rhomb/rhomb/data"
 	"github.com/rhomb/rhomb/data/prep"
 	"github.com/rhomb/rhomb/net"
+	"github.com/rhomb/rhomb/optim/recipe"
 )
 
 // prepared is the data of a training run: the splits, encoded, and what
@@ -35,58 +36,19 @@ func prepare[T net.Float](c *config) (*prepared[T], error) {
 	if err != nil {
 		return nil, dataError{withHint(err)}
 	}
-	p := &prepared[T]{table: t, classes: t.Classes()}
-	labels, err := data.ClassIndex(t.Labels, p.classes)
-	if err != nil {
-		return nil, dataError{err}
-	}
-	parts, err := splitRows(labels, c)
-	if err != nil {
-		return nil, dataError{err}
-	}
-	p.pipeline, err = prep.Fit(t.Columns, parts[0], prep.Options{
+	r, err := recipe.Prepare[T](t, recipe.Split{Holdout: c.Holdout, Test: c.Test, Seed: c.Seed, Prep: prep.Options{
 		Impute: c.Missing == "impute", UnitNorm: c.UnitNorm, UnknownAsZeros: c.NewAsNil, Missing: c.Markers,
-	})
+	}})
 	if err != nil {
-		return nil, dataError{fmt.Errorf("%s: %w", c.Data, err)}
+		return nil, dataError{err}
 	}
-	sets := make([]*data.Set[T], 3)
-	for i, rows := range parts {
-		if rows == nil {
-			continue
-		}
-		if sets[i], err = data.Encode[T](t, rows, p.pipeline, p.classes); err != nil {
-			return nil, dataError{err}
-		}
-	}
-	p.train, p.val, p.test = sets[0], sets[1], sets[2]
-	return p, nil
+	return &prepared[T]{table: t, pipeline: r.Pipeline, classes: r.Classes, train: r.Train, val: r.Val, test: r.Test}, nil
 }
 
 // splitRows returns the training, validation and test rows; the last two
 // are nil when their fraction is 0.
 func splitRows(labels []int, c *config) ([][]int, error) {
-	fr := []float64{1 - c.Holdout - c.Test}
-	if c.Holdout > 0 {
-		fr = append(fr, c.Holdout)
-	}
-	if c.Test > 0 {
-		fr = append(fr, c.Test)
-	}
-	parts, err := data.Stratified(labels, fr, c.Seed)
-	if err != nil {
-		return nil, err
-	}
-	out := [][]int{parts[0], nil, nil}
-	i := 1
-	if c.Holdout > 0 {
-		out[1] = parts[i]
-		i++
-	}
-	if c.Test > 0 {
-		out[2] = parts[i]
-	}
-	return out, nil
+	return recipe.SplitRows(labels, c.Holdout, c.Test, c.Seed)
 }
 
 func prepareIDX[T net.Float](c *config) (*prepared[T], error) {

@@ -83,11 +83,13 @@ func TestTrainBadData(t *testing.T) {
 		{
 			name:    "missing value",
 			content: "a,b,y\n1,2,p\n3,NA,q\n",
+			args:    []string{"-missing", "fail"},
 			pieces:  []string{"@3:2", `(column "b")`, data.ErrMissing.Error(), `"NA"`, "-missing drop", "-missing impute"},
 		},
 		{
 			name:    "empty cell",
 			content: "a,b,y\n1,2,p\n3,,q\n",
+			args:    []string{"-missing", "fail"},
 			pieces:  []string{"@3:2", `(column "b")`, data.ErrMissing.Error(), "-missing"},
 		},
 		{
@@ -144,7 +146,7 @@ func TestTrainBadData(t *testing.T) {
 // take. The model's inputs are x1, x2 (numeric) and site (north, south).
 func TestServeBadData(t *testing.T) {
 	dir := t.TempDir()
-	_, model := sensorModel(t, dir)
+	_, model := sensorModel(t, dir, "-missing", "fail") // a model that refuses missing cells
 	for _, tc := range []struct {
 		name     string
 		commands []string // classify, check or both

@@ -12,7 +12,7 @@ import (
 // empty output row in their place, keeping the row order.
 func TestMissingAtServeTime(t *testing.T) {
 	dir := t.TempDir()
-	_, model := sensorModel(t, dir)
+	_, model := sensorModel(t, dir, "-missing", "fail")
 	rows := "x1,x2,site,state\n0.5,0.1,north,on\n-1,NA,south,off\n-0.7,-0.2,north,off\n"
 	data := writeFile(t, filepath.Join(dir, "gaps.csv"), rows)
 

@@ -20,6 +20,7 @@ type epochLine struct {
 	rho, rhoStar  float64 // ρ* NaN for losses without a closed form
 	minMargin     float64
 	elapsed       time.Duration
+	best          bool // the best validation score so far: the epoch train keeps
 }
 
 func (l epochLine) String() string {
@@ -31,7 +32,11 @@ func (l epochLine) String() string {
 	if !math.IsNaN(l.rhoStar) {
 		s += fmt.Sprintf("  ρ* %.4g", l.rhoStar)
 	}
-	return s + fmt.Sprintf("  min margin %+.4f", l.minMargin)
+	s += fmt.Sprintf("  min margin %+.4f", l.minMargin)
+	if l.best {
+		s += "  best"
+	}
+	return s
 }
 
 // reporter shows training progress: a bar with ETA on a terminal, one
@@ -39,6 +44,8 @@ func (l epochLine) String() string {
 type reporter interface {
 	step()
 	epoch(l epochLine)
+	// note shows a decision the training procedure took on its own.
+	note(s string)
 	finish()
 }
 
@@ -46,6 +53,7 @@ type quietReporter struct{}
 
 func (quietReporter) step()           {}
 func (quietReporter) epoch(epochLine) {}
+func (quietReporter) note(string)     {}
 func (quietReporter) finish()         {}
 
 type lineReporter struct{ w io.Writer }
@@ -54,12 +62,16 @@ func (r lineReporter) step() {}
 func (r lineReporter) epoch(l epochLine) {
 	fmt.Fprintf(r.w, "%s  (%s)\n", l, l.elapsed.Round(time.Millisecond))
 }
-func (r lineReporter) finish() {}
+func (r lineReporter) note(s string) { fmt.Fprintf(r.w, "note: %s\n", s) }
+func (r lineReporter) finish()       {}
 
-type barReporter struct{ bar *progressbar.ProgressBar }
+type barReporter struct {
+	w   io.Writer
+	bar *progressbar.ProgressBar
+}
 
 func newBar(w io.Writer, steps int) *barReporter {
-	return &barReporter{bar: progressbar.NewOptions(steps,
+	return &barReporter{w: w, bar: progressbar.NewOptions(steps,
 		progressbar.OptionSetWriter(w),
 		progressbar.OptionSetDescription("training"),
 		progressbar.OptionShowCount(),
@@ -74,6 +86,10 @@ func newBar(w io.Writer, steps int) *barReporter {
 func (r *barReporter) step()             { r.bar.Add(1) }
 func (r *barReporter) epoch(l epochLine) { r.bar.Describe(l.String()) }
 func (r *barReporter) finish()           { r.bar.Finish() }
+func (r *barReporter) note(s string) {
+	r.bar.Clear()
+	fmt.Fprintf(r.w, "note: %s\n", s)
+}
 
 func newReporter(e *env, quiet bool, steps int) reporter {
 	switch {

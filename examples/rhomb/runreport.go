@@ -31,7 +31,7 @@ type runReport[T net.Float] struct {
 // newRunReport sets up the recorder on the validation split (the test
 // split when there is none) and measures the starting weights, unless the
 // run resumes, when the weights are not the start of anything.
-func newRunReport[T net.Float](c *config, p *prepared[T], model optim.Model[T], lf loss.Func[T], resumed bool, steps int) (*runReport[T], error) {
+func newRunReport[T net.Float](c *config, p *prepared[T], model optim.Model[T], lf loss.Func[T], resumed bool, steps, epochs int) (*runReport[T], error) {
 	r := &runReport[T]{heldout: "validation"}
 	held := p.val
 	if held == nil {
@@ -47,7 +47,7 @@ func newRunReport[T net.Float](c *config, p *prepared[T], model optim.Model[T], 
 		Model: model, Train: p.train, Test: held,
 		// About 5,000 step records and 60 epoch measurements at most, so
 		// that long runs on big sets keep the report's cost small.
-		StepEvery: max(1, steps/5000), EpochEvery: max(1, c.Epochs/60),
+		StepEvery: max(1, steps/5000), EpochEvery: max(1, epochs/60),
 		Collapse: true, Spectra: true, Bound: r.bound,
 	})
 	if err != nil {

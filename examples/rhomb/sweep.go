@@ -24,6 +24,7 @@ import (
 	"github.com/rhomb/rhomb/net/modelfile"
 	"github.com/rhomb/rhomb/normalize"
 	"github.com/rhomb/rhomb/optim"
+	"github.com/rhomb/rhomb/optim/recipe"
 	"github.com/rhomb/rhomb/optim/sweep"
 )
 
@@ -191,11 +192,15 @@ func sweepRun[T net.Float](e *env, c *config, ax *sweepAxes, o *sweepOptions, sh
 	if err != nil {
 		return err
 	}
-	base, err := c.settings()
+	base, err := c.baseSettings()
 	if err != nil {
 		return err
 	}
-	gr := &sweep.Grid{Rho0: ax.rho0.v, WeightDecay: ax.decay.v, LearningRate: ax.lr.v, Temperature: ax.temp.v, Seeds: ax.seeds.v,
+	lrs := ax.lr.v
+	if len(lrs) == 1 && lrs[0] == 0 {
+		lrs = nil // the measured step size of the training procedure
+	}
+	gr := &sweep.Grid{Rho0: ax.rho0.v, WeightDecay: ax.decay.v, LearningRate: lrs, Temperature: ax.temp.v, Seeds: ax.seeds.v,
 		Base: base, Context: ctxJSON}
 	if err := gr.Validate(); err != nil {
 		return usageError{err}
@@ -367,11 +372,16 @@ func sweepPoint[T net.Float](ctx context.Context, c *config, p *prepared[T], wei
 	if wrapped != nil {
 		model = wrapped
 	}
-	tr, err := optim.NewTrainer[T](model, lf, p.train, gr.Settings(pt))
+	plan, err := cp.plan()
 	if err != nil {
 		return r, nil, err
 	}
-	res, err := tr.Run(ctx)
+	sess, err := recipe.NewSession(model, lf, p.train, p.val, plan, nil)
+	if err != nil {
+		return r, nil, err
+	}
+	out, err := sess.Run(ctx)
+	res := out.Result
 	sweep.FromRun(&r, res)
 	if err != nil {
 		return r, nil, err

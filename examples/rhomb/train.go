@@ -6,6 +6,7 @@ import (
 	"errors"
 	"flag"
 	"fmt"
+	"io"
 	"math"
 	"os"
 	"os/signal"
@@ -17,6 +18,7 @@ import (
 	"github.com/rhomb/rhomb/net/modelfile"
 	"github.com/rhomb/rhomb/normalize"
 	"github.com/rhomb/rhomb/optim"
+	"github.com/rhomb/rhomb/optim/recipe"
 )
 
 const trainSummary = `Train a bias-free ReLU classifier with weight normalization, weight decay
@@ -113,14 +115,13 @@ func train[T net.Float](e *env, c *config, o *runOptions) error {
 	var (
 		n       *net.Network[T]
 		wrapped *normalize.Net[T]
-		state   *optim.State
+		resumed *modelfile.Model[T]
 	)
 	if o.resume != "" {
-		m, err := modelfile.Load[T](o.resume)
-		if err != nil {
+		if resumed, err = modelfile.Load[T](o.resume); err != nil {
 			return modelError{err}
 		}
-		n, wrapped, state = m.Network, m.Normalized, m.Checkpoint
+		n, wrapped = resumed.Network, resumed.Normalized
 		if n.In() != p.train.Features || n.Out() != p.train.Outputs {
 			return modelError{fmt.Errorf("%s: the network takes %d features and gives %d outputs, the data has %d and %d", o.resume, n.In(), n.Out(), p.train.Features, p.train.Outputs)}
 		}
@@ -150,21 +151,26 @@ func train[T net.Float](e *env, c *config, o *runOptions) error {
 	if err != nil {
 		return err
 	}
-	s, err := c.settings()
+	plan, err := c.plan()
 	if err != nil {
 		return err
 	}
+	w := e.stdout
+	if !o.quiet {
+		warnImbalance(w, p)
+	}
 
+	var sess *recipe.Session[T]
 	bundle := func(st *optim.State) *modelfile.Model[T] {
-		return &modelfile.Model[T]{Network: n, Normalized: wrapped, Pipeline: p.pipeline, Classes: p.classes,
+		m := &modelfile.Model[T]{Network: n, Normalized: wrapped, Pipeline: p.pipeline, Classes: p.classes,
 			Label: c.Label, Loss: lf.Name(), Training: c.record(), Checkpoint: st}
+		if st != nil {
+			ss := sess.State()
+			m.Session, _ = json.Marshal(ss) // SessionState's MarshalJSON cannot fail
+			m.Kept = ss.Kept
+		}
+		return m
 	}
-	batch := c.Batch
-	if batch == 0 || batch > p.train.Rows {
-		batch = p.train.Rows
-	}
-	stepsPerEpoch := (p.train.Rows + batch - 1) / batch
-	rep := newReporter(e, o.quiet, stepsPerEpoch*c.Epochs)
 	var jsonl *optim.Hooks
 	if o.metrics != "" {
 		f, err := os.Create(o.metrics)
@@ -174,26 +180,35 @@ func train[T net.Float](e *env, c *config, o *runOptions) error {
 		defer f.Close()
 		jsonl = optim.JSONLines(f, 0)
 	}
-	var tr *optim.Trainer[T]
+	var rep reporter
 	var track stepTracker
-	s.Hooks = &optim.Hooks{
+	hooks := &optim.Hooks{
 		EpochMargins: true,
 		Step: func(i *optim.StepInfo) error {
 			track.observe(i)
 			rep.step()
 			return nil
 		},
-		Epoch: func(ei *optim.EpochInfo) error {
-			rep.epoch(epochLine{epoch: ei.Epoch + 1, epochs: c.Epochs, loss: ei.Loss,
-				trainAcc: 1 - float64(ei.Full.Negative)/float64(ei.Full.Rows), valAcc: accuracy(model, p.val),
-				rho: ei.Rho, rhoStar: track.rhoStar, minMargin: ei.Full.Min, elapsed: ei.Elapsed})
+	}
+	obs := &recipe.Observer{
+		Hooks: hooks,
+		Note: func(s string) {
+			if !o.quiet {
+				rep.note(s)
+			}
+		},
+		Epoch: func(r *recipe.EpochReport) error {
+			ei := r.Info
+			rep.epoch(epochLine{epoch: ei.Epoch + 1, epochs: sess.Plan().Epochs, loss: ei.Loss,
+				trainAcc: 1 - float64(ei.Full.Negative)/float64(ei.Full.Rows), valAcc: valAccuracy(p.val, r),
+				rho: ei.Rho, rhoStar: track.rhoStar, minMargin: ei.Full.Min, elapsed: ei.Elapsed, best: r.Best})
 			if jsonl != nil {
 				if err := jsonl.Epoch(ei); err != nil {
 					return err
 				}
 			}
 			if o.every > 0 && (ei.Epoch+1)%o.every == 0 {
-				st := tr.State()
+				st := sess.Trainer().State()
 				if err := modelfile.Save(o.checkpoint, bundle(&st)); err != nil {
 					return err
 				}
@@ -201,31 +216,43 @@ func train[T net.Float](e *env, c *config, o *runOptions) error {
 			return nil
 		},
 	}
+	resolved := plan.Resolved(p.train.Rows)
+	batch := min(resolved.Batch, p.train.Rows)
+	steps := (p.train.Rows + batch - 1) / batch * resolved.Epochs
 	var rr *runReport[T]
 	if o.report != "" {
-		if rr, err = newRunReport(c, p, model, lf, o.resume != "", stepsPerEpoch*c.Epochs); err != nil {
+		if rr, err = newRunReport(c, p, model, lf, o.resume != "", steps, resolved.Epochs); err != nil {
 			return fmt.Errorf("report: %w", err)
 		}
-		s.Hooks = optim.Join(s.Hooks, rr.hooks())
+		obs.Hooks = optim.Join(hooks, rr.hooks())
 	}
-	tr, err = optim.NewTrainer[T](model, lf, p.train, s)
+	rep = newReporter(e, o.quiet, steps)
+	sess, err = recipe.NewSession(model, lf, p.train, p.val, plan, obs)
 	if err != nil {
 		return usageError{fmt.Errorf("train: %w", err)}
 	}
-	if state != nil {
-		if err := tr.Restore(*state); err != nil {
+	if resumed != nil {
+		var ss recipe.SessionState
+		if resumed.Session != nil {
+			if err := json.Unmarshal(resumed.Session, &ss); err != nil {
+				return modelError{fmt.Errorf("%s: session record: %w", o.resume, err)}
+			}
+		}
+		ss.Kept = resumed.Kept
+		if err := sess.Restore(ss, *resumed.Checkpoint); err != nil {
 			return modelError{fmt.Errorf("%s: %w", o.resume, err)}
 		}
 	}
 	ctx, stop := signal.NotifyContext(context.Background(), os.Interrupt, syscall.SIGTERM)
 	defer stop()
-	res, err := tr.Run(ctx)
+	out, err := sess.Run(ctx)
 	rep.finish()
-	if res.Status == optim.Canceled && o.checkpoint == "" {
+	res := out.Result
+	if out.Stop == recipe.StopCanceled && o.checkpoint == "" {
 		return fmt.Errorf("%w after %d steps", errInterrupted, res.Steps)
 	}
-	if res.Status == optim.Canceled {
-		st := tr.State()
+	if out.Stop == recipe.StopCanceled {
+		st := sess.Trainer().State()
 		if serr := modelfile.Save(o.checkpoint, bundle(&st)); serr != nil {
 			return fmt.Errorf("%w; saving the checkpoint failed too: %v", errInterrupted, serr)
 		}
@@ -235,9 +262,13 @@ func train[T net.Float](e *env, c *config, o *runOptions) error {
 		return fmt.Errorf("training failed: %w", err)
 	}
 
-	metrics := map[string]any{"epochs": res.Epochs, "steps": res.Steps, "status": res.Status.String(), "rho": n.Rho()}
+	metrics := map[string]any{"epochs": res.Epochs, "steps": res.Steps, "status": res.Status.String(), "rho": n.Rho(),
+		"best_epoch": out.Best.Epoch, "ranked_by": out.Metric.String(), "stopped": out.Stop.String(), "learning_rate": out.Rate}
 	if !math.IsNaN(res.Loss) {
 		metrics["loss"] = res.Loss
+	}
+	if !math.IsNaN(out.Sharpness) {
+		metrics["sharpness"] = out.Sharpness
 	}
 	report := func(name string, set *data.Set[T]) *score.Confusion {
 		if set == nil {
@@ -251,8 +282,17 @@ func train[T net.Float](e *env, c *config, o *runOptions) error {
 	report("train", p.train)
 	val := report("validation", p.val)
 	test := report("test", p.test)
-	w := e.stdout
-	fmt.Fprintf(w, "trained %d epochs (%d steps, %s)", res.Epochs, res.Steps, res.Status)
+	var health recipe.Health
+	if p.val != nil {
+		health = recipe.Check(model, p.val, p.classes)
+		if !health.OK() {
+			metrics["health"] = health.String()
+		}
+	}
+	if c.Strict && !health.OK() {
+		return fmt.Errorf("the trained model is degenerate, so nothing was saved (-strict): %s", health)
+	}
+	fmt.Fprintf(w, "trained %d epochs (%d steps, %s)", res.Epochs, res.Steps, out.Stop)
 	if o.out != "" {
 		m := bundle(nil)
 		m.Metrics = metrics
@@ -262,11 +302,17 @@ func train[T net.Float](e *env, c *config, o *runOptions) error {
 		fmt.Fprintf(w, "; saved %s", o.out)
 	}
 	fmt.Fprintln(w)
+	if p.val != nil {
+		fmt.Fprintf(w, "kept epoch %d of %d: best validation %s %.4f (ties go to the larger minimum margin)\n", out.Best.Epoch, res.Epochs, out.Metric, out.Best.Value)
+	}
 	fmt.Fprintf(w, "classes: %s\n", joinClasses(p.classes))
 	if p.table != nil && p.table.Dropped > 0 {
 		fmt.Fprintf(w, "rows dropped for missing values: %d\n", p.table.Dropped)
 	}
 	fmt.Fprintf(w, "train accuracy %.4f on %d rows; ρ = %.4g\n", metrics["train_accuracy"], p.train.Rows, n.Rho())
+	if !health.OK() {
+		fmt.Fprintf(w, "\nwarning: the kept model looks degenerate: %s\n(train -strict makes this an error.)\n", health)
+	}
 	for _, r := range []struct {
 		name string
 		c    *score.Confusion
@@ -287,6 +333,34 @@ func train[T net.Float](e *env, c *config, o *runOptions) error {
 		fmt.Fprintf(w, "\nreport written to %s\n", o.report)
 	}
 	return nil
+}
+
+// valAccuracy is the epoch's validation accuracy, NaN without validation
+// rows.
+func valAccuracy[T net.Float](val *data.Set[T], r *recipe.EpochReport) float64 {
+	if val == nil {
+		return math.NaN()
+	}
+	return r.Score.Accuracy
+}
+
+// imbalanceShare is the share of the training rows below which a class is
+// called rare: at 10% a model can reach 90% accuracy by never answering
+// it (common practice, no source).
+const imbalanceShare = 0.10
+
+// warnImbalance says when a class is rare in the training rows, and what
+// helps.
+func warnImbalance[T net.Float](w io.Writer, p *prepared[T]) {
+	counts := make([]int, max(p.train.Outputs, 2))
+	for _, l := range p.train.Labels() {
+		counts[l]++
+	}
+	for k, n := range counts {
+		if share := float64(n) / float64(p.train.Rows); share < imbalanceShare && k < len(p.classes) {
+			fmt.Fprintf(w, "note: class %q holds %.1f%% of the training rows; -balance weights the classes and -metric balanced ranks epochs by balanced accuracy\n", p.classes[k], 100*share)
+		}
+	}
 }
 
 // predictRows runs the model over a set in chunks and calls f with each

@@ -87,6 +87,7 @@ const (
 	roleParam    = "param"    // a trainable parameter of a normalized model (ρ or V)
 	roleVelocity = "velocity" // a momentum buffer, in a checkpoint
 	roleOrder    = "order"    // the batch order, in a checkpoint
+	roleKept     = "kept"     // the best epoch's parameter, in a checkpoint
 )
 
 type checkpointHeader struct {
@@ -98,4 +99,7 @@ type checkpointHeader struct {
 	LastLoss  *float64 `json:"last_loss"` // null before the first epoch ends
 	BatchRNG  []byte   `json:"batch_rng"`
 	NoiseRNG  []byte   `json:"noise_rng"`
+	// Session is the training procedure's own record (optim/recipe's
+	// SessionState), kept as it is.
+	Session json.RawMessage `json:"session,omitempty"`
 }

@@ -45,6 +45,12 @@ type Model[T net.Float] struct {
 	Created time.Time
 	// Checkpoint, when set, is the trainer state to resume from.
 	Checkpoint *optim.State
+	// Session and Kept belong to a checkpoint of a training procedure that
+	// keeps the best epoch (package optim/recipe): its own record, kept as
+	// it is, and the best epoch's trainable parameters in Params order,
+	// widened to float64. Both are written only with a Checkpoint.
+	Session json.RawMessage
+	Kept    [][]float64
 }
 
 // Trainable returns the model the trainer updates: the wrapper if there
@@ -144,6 +150,16 @@ func encode[T net.Float](m *Model[T]) ([]byte, error) {
 		for i, v := range c.Velocity {
 			add("velocity/"+params[i].Name, roleVelocity, "float64", []int{len(v)}, func(b *bytes.Buffer) { putFloats(b, v) })
 		}
+		if m.Kept != nil && len(m.Kept) != len(params) {
+			return nil, fmt.Errorf("modelfile: Write: checkpoint keeps %d parameters for %d", len(m.Kept), len(params))
+		}
+		for i, v := range m.Kept {
+			if len(v) != len(params[i].Value) {
+				return nil, fmt.Errorf("modelfile: Write: kept parameter %s has %d values for %d", params[i].Name, len(v), len(params[i].Value))
+			}
+			add("kept/"+params[i].Name, roleKept, "float64", []int{len(v)}, func(b *bytes.Buffer) { putFloats(b, v) })
+		}
+		h.Checkpoint.Session = m.Session
 		if len(c.Order) > math.MaxInt32 {
 			return nil, fmt.Errorf("modelfile: Write: %d rows do not fit the checkpoint's int32 order", len(c.Order))
 		}

@@ -12,6 +12,7 @@ import (
 	"os"
 	"path/filepath"
 	"runtime"
+	"slices"
 	"strings"
 	"testing"
 
@@ -182,12 +183,35 @@ func TestCheckpointResume(t *testing.T) {
 	tr := run(part, stop, nil)
 	st := tr.State()
 	path := filepath.Join(t.TempDir(), "run.ckpt")
-	if err := modelfile.Save(path, &modelfile.Model[float32]{Network: n, Normalized: part, Checkpoint: &st}); err != nil {
+	// The kept parameters (a copy of the weights at step 7, widened) and
+	// the session record must come back exactly: float64 bytes in, float64
+	// bytes out, and the record as it was written.
+	var kept [][]float64
+	for _, p := range part.Params() {
+		w := make([]float64, len(p.Value))
+		for i, v := range p.Value {
+			w[i] = float64(v)
+		}
+		kept = append(kept, w)
+	}
+	session := json.RawMessage(`{"rate":0.01,"best":{"epoch":3}}`)
+	if err := modelfile.Save(path, &modelfile.Model[float32]{Network: n, Normalized: part, Checkpoint: &st, Kept: kept, Session: session}); err != nil {
 		t.Fatal(err)
 	}
 	back, err := modelfile.Load[float32](path)
 	if err != nil {
 		t.Fatal(err)
+	}
+	if string(back.Session) != string(session) {
+		t.Errorf("session record read back as %s, want %s", back.Session, session)
+	}
+	if len(back.Kept) != len(kept) {
+		t.Fatalf("%d kept parameters read back, want %d", len(back.Kept), len(kept))
+	}
+	for i := range kept {
+		if !slices.Equal(back.Kept[i], kept[i]) {
+			t.Errorf("kept parameter %d differs after the round trip", i)
+		}
 	}
 	if back.Checkpoint == nil || back.Checkpoint.Step != 7 || len(back.Checkpoint.Velocity) != len(part.Params()) {
 		t.Fatalf("checkpoint read back as %+v", back.Checkpoint)

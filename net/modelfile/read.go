@@ -191,6 +191,27 @@ func Read[T net.Float](b []byte, source string) (*Model[T], error) {
 		if st.Velocity != nil && len(st.Velocity) != len(m.Trainable().Params()) {
 			return fail(container.PrefixLen, ErrShape, "%d momentum buffers for %d parameters", len(st.Velocity), len(m.Trainable().Params()))
 		}
+		for _, p := range m.Trainable().Params() {
+			t := byName["kept/"+p.Name]
+			if t == nil {
+				continue
+			}
+			if t.Role != roleKept || t.DType != "float64" || len(t.Shape) != 1 || t.Shape[0] != len(p.Value) {
+				return fail(container.PrefixLen, ErrShape, "kept parameter %q: role %s, shape %v %s, want kept [%d] float64", t.Name, t.Role, t.Shape, t.DType, len(p.Value))
+			}
+			v := make([]float64, len(p.Value))
+			for i := range v {
+				v[i] = math.Float64frombits(binary.LittleEndian.Uint64(data[t.Offset+8*int64(i):]))
+				if math.IsNaN(v[i]) || math.IsInf(v[i], 0) {
+					return fail(container.PrefixLen, ErrShape, "kept parameter %q: value %d is %v", t.Name, i, v[i])
+				}
+			}
+			m.Kept = append(m.Kept, v)
+		}
+		if m.Kept != nil && len(m.Kept) != len(m.Trainable().Params()) {
+			return fail(container.PrefixLen, ErrShape, "%d kept parameters for %d", len(m.Kept), len(m.Trainable().Params()))
+		}
+		m.Session = c.Session
 		t := byName["order"]
 		if t == nil || t.Role != roleOrder || t.DType != "int32" || len(t.Shape) != 1 {
 			return fail(container.PrefixLen, ErrShape, "checkpoint without its batch order")

@@ -1,0 +1,289 @@
+package recipe
+
+import (
+	"context"
+	"errors"
+	"fmt"
+	"strings"
+
+	"github.com/rhomb/rhomb/data"
+	"github.com/rhomb/rhomb/data/prep"
+	"github.com/rhomb/rhomb/loss"
+	"github.com/rhomb/rhomb/net"
+	"github.com/rhomb/rhomb/net/modelfile"
+	"github.com/rhomb/rhomb/normalize"
+	"github.com/rhomb/rhomb/optim"
+)
+
+// Build makes the network a plan describes for the given numbers of
+// input features and outputs: a constant-1 feature in place of biases,
+// the hidden dense layers each followed by ReLU, and the readout,
+// initialized He-normal with scale ρ0 and wrapped in the plan's weight
+// normalization (nil for Plain).
+func Build[T net.Float](p Plan, features, outputs int) (*net.Network[T], *normalize.Net[T], error) {
+	p = p.filled()
+	if err := p.check(); err != nil {
+		return nil, nil, err
+	}
+	b := net.NewBuilder[T](features).ConstantFeature("one")
+	for i, w := range p.Hidden {
+		id := fmt.Sprint(i + 1)
+		b.Dense("hidden"+id, w).ReLU("relu" + id)
+	}
+	n, err := b.Readout("readout", outputs).Build()
+	if err != nil {
+		return nil, nil, err
+	}
+	if err := n.Init(net.InitSettings{Scheme: net.HeNormal, Rho0: p.Rho0, Seed: p.Seed}); err != nil {
+		return nil, nil, err
+	}
+	o, ok := p.Norm.options()
+	if !ok {
+		return n, nil, nil
+	}
+	w, err := normalize.Wrap(n, o)
+	if err != nil {
+		return nil, nil, err
+	}
+	return n, w, nil
+}
+
+// options is the normalize.Options of a Norm; false for Plain.
+func (n Norm) options() (normalize.Options, bool) {
+	switch n {
+	case Global:
+		return normalize.Options{Scale: normalize.Global}, true
+	case PerUnit:
+		return normalize.Options{PerUnit: true}, true
+	case Plain:
+		return normalize.Options{}, false
+	}
+	return normalize.Options{}, true
+}
+
+// Fitted is a trained model and how it was trained.
+type Fitted[T net.Float] struct {
+	Network    *net.Network[T]
+	Normalized *normalize.Net[T] // nil for a plain network
+	Loss       loss.Func[T]
+	// Plan is the plan as run, defaults filled in, with the seed and step
+	// factor of the attempt that was kept.
+	Plan    Plan
+	Outcome Outcome
+	// Health holds what is wrong with the chosen model on the validation
+	// rows, if anything.
+	Health Health
+}
+
+// Model is the trained model: the normalized wrapper when there is one.
+func (f *Fitted[T]) Model() optim.Model[T] {
+	if f.Normalized != nil {
+		return f.Normalized
+	}
+	return f.Network
+}
+
+// Fit builds the plan's network and trains it on train with the square
+// loss (class-weighted when balance is set), choosing the epoch by the
+// validation rows val (nil keeps the last epoch). A run that collapses at
+// the start is restarted from a fresh seed with half the step factor, at
+// most Plan.Restarts times; each restart is noted to obs.
+func Fit[T net.Float](ctx context.Context, train, val *data.Set[T], plan Plan, balance bool, obs *Observer) (*Fitted[T], error) {
+	plan = plan.forRows(train.Rows).filled()
+	var lf loss.Func[T] = loss.Square[T]{}
+	if balance {
+		lf = loss.Weighted[T]{Inner: lf, Weights: data.ClassWeights(train.Labels(), max(train.Outputs, 2))}
+	}
+	for attempt := 0; ; attempt++ {
+		n, w, err := Build[T](plan, train.Features, train.Outputs)
+		if err != nil {
+			return nil, err
+		}
+		f := &Fitted[T]{Network: n, Normalized: w, Loss: lf, Plan: plan}
+		s, err := NewSession(f.Model(), lf, train, val, plan, obs)
+		if err != nil {
+			return nil, err
+		}
+		out, err := s.Run(ctx)
+		out.Restarts = attempt
+		f.Outcome = out
+		if err != nil {
+			return f, err
+		}
+		if out.Stop == StopCollapsed && attempt < plan.Restarts {
+			obs.note("the run collapsed at the start (ρ %.3g after %d epochs, validation accuracy at the majority rate); restarting with seed %d and step factor %.3g",
+				n.Rho(), out.Result.Epochs, plan.Seed+1, plan.StepFactor/2)
+			plan.Seed++
+			plan.StepFactor /= 2
+			if plan.LearningRate > 0 {
+				plan.LearningRate /= 2
+			}
+			continue
+		}
+		if val != nil {
+			f.Health = Check(f.Model(), val, nil)
+			if plan.Strict && !f.Health.OK() {
+				return f, fmt.Errorf("%w: %s", ErrDegenerate, f.Health.Problems[0])
+			}
+		}
+		return f, nil
+	}
+}
+
+// ErrDegenerate is returned by Fit with Plan.Strict when the chosen model
+// fails a Health check.
+var ErrDegenerate = errors.New("recipe: the trained model is degenerate")
+
+// Health is what is wrong with a model on labelled rows, in words a user
+// can act on.
+type Health struct {
+	Problems []string
+	// Advice says what to try; empty when there are no problems.
+	Advice string
+}
+
+// OK reports no problems.
+func (h Health) OK() bool { return len(h.Problems) == 0 }
+
+func (h Health) String() string {
+	if h.OK() {
+		return "no problems found"
+	}
+	return strings.Join(h.Problems, "; ") + ". " + h.Advice
+}
+
+// Check looks for a degenerate model on labelled rows: one that predicts a
+// single class, scores at or below the majority-class rate, or never
+// recognizes a class that has rows (recall 0). classes names the classes
+// (nil: by index).
+func Check[T net.Float](m optim.Model[T], s *data.Set[T], classes []string) Health {
+	e := Evaluate(m, s)
+	name := func(k int) string {
+		if k < len(classes) {
+			return fmt.Sprintf("%q", classes[k])
+		}
+		return fmt.Sprint(k)
+	}
+	var h Health
+	pred := e.Predicted()
+	used := 0
+	for _, n := range pred {
+		if n > 0 {
+			used++
+		}
+	}
+	if used == 1 {
+		for k, n := range pred {
+			if n > 0 {
+				h.Problems = append(h.Problems, fmt.Sprintf("it predicts class %s for every one of the %d validation rows", name(k), e.Rows()))
+			}
+		}
+	}
+	if acc, maj := e.Accuracy(), e.Majority(); acc <= maj {
+		h.Problems = append(h.Problems, fmt.Sprintf("its validation accuracy %.4f is no better than always answering the most frequent class (%.4f)", acc, maj))
+	}
+	if used > 1 {
+		for k := range e.Count {
+			if r := e.Recall(k); r == 0 {
+				h.Problems = append(h.Problems, fmt.Sprintf("it recognizes none of the %d validation rows of class %s", sumExcept(e.Count[k], -1), name(k)))
+			}
+		}
+	}
+	if !h.OK() {
+		h.Advice = "Try weighting the classes by their frequency (balance), ranking epochs by balanced accuracy, a search over a few settings, or more epochs"
+	}
+	return h
+}
+
+func sumExcept(row []int, skip int) int {
+	n := 0
+	for j, v := range row {
+		if j != skip {
+			n += v
+		}
+	}
+	return n
+}
+
+// Prepared holds a table's rows split, encoded and ready to train on.
+type Prepared[T net.Float] struct {
+	Pipeline         *prep.Pipeline
+	Classes          []string
+	Train, Val, Test *data.Set[T] // Val and Test are nil when their fraction is 0
+}
+
+// Split says how Prepare divides and encodes a table.
+type Split struct {
+	// Holdout and Test are the fractions of rows held out for validation
+	// and for a final test, stratified by class and seeded.
+	Holdout, Test float64
+	Seed          uint64
+	// Prep configures the preprocessing, fitted on the training rows only.
+	Prep prep.Options
+}
+
+// Prepare splits a table's rows (stratified, seeded), fits the
+// preprocessing on the training rows only, and encodes each part.
+func Prepare[T net.Float](t *data.Table, s Split) (*Prepared[T], error) {
+	classes := t.Classes()
+	labels, err := data.ClassIndex(t.Labels, classes)
+	if err != nil {
+		return nil, err
+	}
+	parts, err := SplitRows(labels, s.Holdout, s.Test, s.Seed)
+	if err != nil {
+		return nil, err
+	}
+	pl, err := prep.Fit(t.Columns, parts[0], s.Prep)
+	if err != nil {
+		return nil, fmt.Errorf("%s: %w", t.Source, err)
+	}
+	p := &Prepared[T]{Pipeline: pl, Classes: classes}
+	sets := make([]*data.Set[T], 3)
+	for i, rows := range parts {
+		if rows == nil {
+			continue
+		}
+		if sets[i], err = data.Encode[T](t, rows, pl, classes); err != nil {
+			return nil, err
+		}
+	}
+	p.Train, p.Val, p.Test = sets[0], sets[1], sets[2]
+	return p, nil
+}
+
+// SplitRows returns the training, validation and test rows of a labelled
+// set, stratified and seeded; the last two are nil when their fraction is 0.
+func SplitRows(labels []int, holdout, test float64, seed uint64) ([][]int, error) {
+	if !(holdout >= 0 && test >= 0 && holdout+test < 1) {
+		return nil, fmt.Errorf("recipe: holdout %v and test %v must be fractions summing to less than 1", holdout, test)
+	}
+	fr := []float64{1 - holdout - test}
+	if holdout > 0 {
+		fr = append(fr, holdout)
+	}
+	if test > 0 {
+		fr = append(fr, test)
+	}
+	parts, err := data.Stratified(labels, fr, seed)
+	if err != nil {
+		return nil, err
+	}
+	out := [][]int{parts[0], nil, nil}
+	i := 1
+	if holdout > 0 {
+		out[1] = parts[i]
+		i++
+	}
+	if test > 0 {
+		out[2] = parts[i]
+	}
+	return out, nil
+}
+
+// File bundles a fitted model with its preprocessing into a model file's
+// contents; training and metrics are the caller's records.
+func (f *Fitted[T]) File(p *Prepared[T], label string) *modelfile.Model[T] {
+	return &modelfile.Model[T]{Network: f.Network, Normalized: f.Normalized, Pipeline: p.Pipeline, Classes: p.Classes,
+		Label: label, Loss: f.Loss.Name()}
+}

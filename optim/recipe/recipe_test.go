@@ -1,0 +1,285 @@
+package recipe_test
+
+import (
+	"context"
+	"encoding/json"
+	"math"
+	"slices"
+	"testing"
+
+	"gonum.org/v1/gonum/mat"
+
+	"github.com/rhomb/rhomb/data"
+	"github.com/rhomb/rhomb/internal/opendata"
+	"github.com/rhomb/rhomb/loss"
+	"github.com/rhomb/rhomb/optim"
+	"github.com/rhomb/rhomb/optim/recipe"
+)
+
+// iris returns Fisher's Iris data (REFERENCES.md: 150 rows, 50 per
+// species) as a Set with one-hot targets, each measurement standardized
+// over all rows, and a stratified, seeded 80/20 split of it.
+func iris(t *testing.T) (all, train, val *data.Set[float64]) {
+	t.Helper()
+	x, species, err := opendata.Iris()
+	if err != nil {
+		t.Fatal(err)
+	}
+	n := len(x)
+	all = &data.Set[float64]{Rows: n, Features: 4, Outputs: 3, Classes: opendata.IrisSpecies,
+		X: make([]float64, n*4), Y: make([]float64, n*3)}
+	for j := range 4 {
+		var mean, ss float64
+		for _, r := range x {
+			mean += r[j] / float64(n)
+		}
+		for _, r := range x {
+			ss += (r[j] - mean) * (r[j] - mean)
+		}
+		sd := math.Sqrt(ss / float64(n-1))
+		for i, r := range x {
+			all.X[i*4+j] = (r[j] - mean) / sd
+		}
+	}
+	for i, s := range species {
+		all.Y[i*3+s] = 1
+	}
+	parts, err := recipe.SplitRows(all.Labels(), 0.2, 0, 1)
+	if err != nil {
+		t.Fatal(err)
+	}
+	return all, all.Subset(parts[0]), all.Subset(parts[1])
+}
+
+// TestStepSizeLeastSquares checks the measured step size where the
+// curvature is known in closed form: a linear model (a constant feature
+// and the readout, no normalization) with the square loss, whose
+// objective (1/n)Σ(y − w·x̃)² + λ‖w‖² has the constant Hessian
+// (2/n)X̃ᵀX̃ + 2λI (calculus; REFERENCES.md, "Least squares"). Its
+// largest eigenvalue comes from gonum's EigenSym, and the plan's η must be
+// StepFactor × 2(1 + μ)/λ_max, the heavy-ball threshold (optim.StableRate).
+//
+// Tolerance: the power iteration stops once two estimates differ by at
+// most 10⁻³ of the latest (optim.SharpnessSettings); for a symmetric
+// matrix the Rayleigh quotient's error then is at most that change times
+// r²/(1 − r²), r = λ₂/λ₁ (the error shrinks by r² per step; a geometric
+// series), plus rounding, far smaller.
+func TestStepSizeLeastSquares(t *testing.T) {
+	_, train, _ := iris(t)
+	// Setosa against the rest, as ±1: one output.
+	bin := &data.Set[float64]{Rows: train.Rows, Features: 4, Outputs: 1, X: train.X, Y: make([]float64, train.Rows)}
+	for r := range train.Rows {
+		bin.Y[r] = -1
+		if train.Class(r) == 0 {
+			bin.Y[r] = 1
+		}
+	}
+	plan := recipe.Plan{Hidden: []int{}, Norm: recipe.Plain, Decay: 1e-3, Epochs: 1, Seed: 1}
+	var outcome recipe.Outcome
+	f, err := recipe.Fit(context.Background(), bin, nil, plan, false, nil)
+	if err != nil {
+		t.Fatal(err)
+	}
+	outcome = f.Outcome
+
+	n := bin.Rows
+	xt := mat.NewDense(n, 5, nil)
+	for r := range n {
+		for j := range 4 {
+			xt.Set(r, j, bin.X[r*4+j])
+		}
+		xt.Set(r, 4, 1) // the constant feature
+	}
+	var h mat.SymDense
+	h.SymOuterK(2/float64(n), xt.T())
+	for i := range 5 {
+		h.SetSym(i, i, h.At(i, i)+2*1e-3)
+	}
+	var eig mat.EigenSym
+	if !eig.Factorize(&h, false) {
+		t.Fatal("EigenSym did not converge")
+	}
+	ev := eig.Values(nil) // ascending
+	l1, l2 := ev[4], ev[3]
+	r := l2 / l1
+	tol := 1e-3 * l1 * r * r / (1 - r*r)
+	if d := math.Abs(outcome.Sharpness - l1); d > tol {
+		t.Errorf("measured curvature %.10g, gonum's largest eigenvalue %.10g: off by %.3g > %.3g", outcome.Sharpness, l1, d, tol)
+	}
+	d := recipe.Defaults()
+	if want := d.StepFactor * optim.StableRate(outcome.Sharpness, d.Momentum, false); outcome.Rate != want {
+		t.Errorf("η = %v, want StepFactor × 2(1+μ)/λ_max = %v", outcome.Rate, want)
+	}
+}
+
+// TestKeepsBestEpoch checks what the session promises for any data (Iris
+// here): the kept epoch is the best of the history by the metric, then by
+// the minimum normalized margin; the model ends with that epoch's weights,
+// so evaluating it again gives that epoch's figures exactly (the same
+// forward pass on the same weights); and a run stopped for patience ends
+// exactly Patience epochs after its best.
+func TestKeepsBestEpoch(t *testing.T) {
+	_, train, val := iris(t)
+	plan := recipe.Plan{Hidden: []int{16}, Epochs: 300, Patience: 5, Seed: 3}
+	var seen []recipe.Score
+	obs := &recipe.Observer{Epoch: func(r *recipe.EpochReport) error {
+		seen = append(seen, r.Score)
+		return nil
+	}}
+	f, err := recipe.Fit(context.Background(), train, val, plan, false, obs)
+	if err != nil {
+		t.Fatal(err)
+	}
+	out := f.Outcome
+	if out.Stop != recipe.StopPatience {
+		t.Fatalf("the run stopped with %q after %d epochs; this check needs a patience stop", out.Stop, out.Result.Epochs)
+	}
+	if got := out.Result.Epochs - out.Best.Epoch; got != 5 {
+		t.Errorf("stopped %d epochs after the best, want the patience, 5", got)
+	}
+	best := seen[0]
+	for _, s := range seen[1:] {
+		if s.Value > best.Value || s.Value == best.Value && s.MinMargin > best.MinMargin {
+			best = s
+		}
+	}
+	if best != out.Best {
+		t.Errorf("kept %+v, the history's best is %+v", out.Best, best)
+	}
+	if !slices.Equal(seen, out.History) {
+		t.Error("the outcome's history differs from the scores the observer saw")
+	}
+	e := recipe.Evaluate(f.Model(), val)
+	if e.Accuracy() != out.Best.Accuracy || e.MinMargin != out.Best.MinMargin {
+		t.Errorf("the model scores accuracy %v, min margin %v; the kept epoch %d scored %v, %v",
+			e.Accuracy(), e.MinMargin, out.Best.Epoch, out.Best.Accuracy, out.Best.MinMargin)
+	}
+}
+
+// TestHealthOneClass builds the degenerate model by hand: a linear model
+// whose only non-zero weight joins the constant feature to setosa's
+// output, so that it answers setosa for every row. Iris has 50 rows of
+// each species (UCI description; REFERENCES.md), so such a model is right
+// on exactly a third of the rows, the majority rate, and recognizes none
+// of the other two species.
+func TestHealthOneClass(t *testing.T) {
+	all, _, _ := iris(t)
+	n, _, err := recipe.Build[float64](recipe.Plan{Hidden: []int{}, Norm: recipe.Plain}, 4, 3)
+	if err != nil {
+		t.Fatal(err)
+	}
+	w := n.Dense()[0].W // 3 × (4 + 1): the constant feature last
+	clear(w.Value)
+	w.Value[4] = 1
+	h := recipe.Check(n, all, opendata.IrisSpecies)
+	if h.OK() {
+		t.Fatal("a model that answers one class passed the health check")
+	}
+	e := recipe.Evaluate(n, all)
+	if e.Accuracy() != 50.0/150 || e.Majority() != 50.0/150 {
+		t.Errorf("accuracy %v, majority %v; want 1/3 each", e.Accuracy(), e.Majority())
+	}
+	want := []string{`predicts class "setosa" for every one of the 150`, "no better than always answering the most frequent class"}
+	for i, p := range want {
+		if i >= len(h.Problems) || !contains(h.Problems[i], p) {
+			t.Errorf("problem %d: want %q in %q", i, p, h.Problems)
+		}
+	}
+	if h.Advice == "" {
+		t.Error("no advice with the problems")
+	}
+	// A class never recognized while others are: answer versicolor for
+	// setosa's rows and virginica for the rest (petal length, the third
+	// measurement, separates setosa; UCI description).
+	clear(w.Value)
+	w.Value[1*5+2] = -1 // versicolor: short petals
+	w.Value[2*5+2] = 1  // virginica: long petals
+	h = recipe.Check(n, all, opendata.IrisSpecies)
+	found := false
+	for _, p := range h.Problems {
+		found = found || contains(p, `none of the 50 validation rows of class "setosa"`)
+	}
+	if !found {
+		t.Errorf("setosa is never recognized, yet the problems are %q", h.Problems)
+	}
+}
+
+func contains(s, sub string) bool {
+	for i := 0; i+len(sub) <= len(s); i++ {
+		if s[i:i+len(sub)] == sub {
+			return true
+		}
+	}
+	return false
+}
+
+// TestResumeSameBits interrupts a session (the context canceled after
+// three epochs), saves its state and the trainer's, restores both into a
+// new session over a copy of the weights, and finishes: the parameters,
+// the kept epoch and the history must equal those of a run never
+// interrupted, bit for bit (a property of the saved state, for any data).
+func TestResumeSameBits(t *testing.T) {
+	_, train, val := iris(t)
+	plan := recipe.Plan{Hidden: []int{8}, Epochs: 12, Patience: -1, Seed: 5, Temperature: 1e-6}
+	newModel := func() (*recipe.Fitted[float64], *recipe.Session[float64], context.CancelFunc, context.Context) {
+		n, w, err := recipe.Build[float64](plan, 4, 3)
+		if err != nil {
+			t.Fatal(err)
+		}
+		f := &recipe.Fitted[float64]{Network: n, Normalized: w, Loss: loss.Square[float64]{}}
+		ctx, cancel := context.WithCancel(context.Background())
+		s, err := recipe.NewSession(f.Model(), f.Loss, train, val, plan, &recipe.Observer{Epoch: func(r *recipe.EpochReport) error {
+			if r.Score.Epoch == 3 {
+				cancel()
+			}
+			return nil
+		}})
+		if err != nil {
+			t.Fatal(err)
+		}
+		return f, s, cancel, ctx
+	}
+	whole, ws, _, _ := newModel()
+	wout, err := ws.Run(context.Background())
+	if err != nil {
+		t.Fatal(err)
+	}
+
+	part, ps, _, ctx := newModel()
+	if _, err := ps.Run(ctx); err == nil {
+		t.Fatal("the canceled run returned no error")
+	}
+	saved, tst := ps.State(), ps.Trainer().State()
+	if saved.Kept == nil {
+		t.Fatal("the session state keeps no best weights after three scored epochs")
+	}
+	// Through JSON, as a checkpoint stores it (Kept goes into tensors).
+	b, err := json.Marshal(saved)
+	if err != nil {
+		t.Fatal(err)
+	}
+	var st recipe.SessionState
+	if err := json.Unmarshal(b, &st); err != nil {
+		t.Fatal(err)
+	}
+	st.Kept = saved.Kept
+	rest, rs, _, _ := newModel()
+	for i, p := range rest.Model().Params() {
+		copy(p.Value, part.Model().Params()[i].Value)
+	}
+	if err := rs.Restore(st, tst); err != nil {
+		t.Fatal(err)
+	}
+	rout, err := rs.Run(context.Background())
+	if err != nil {
+		t.Fatal(err)
+	}
+	for i, p := range whole.Model().Params() {
+		if !slices.Equal(p.Value, rest.Model().Params()[i].Value) {
+			t.Fatalf("parameter %s differs between the resumed and the uninterrupted run", p.Name)
+		}
+	}
+	if wout.Best != rout.Best || !slices.Equal(wout.History, rout.History) {
+		t.Errorf("kept %+v after resuming, %+v uninterrupted", rout.Best, wout.Best)
+	}
+}
