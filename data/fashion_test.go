@@ -180,3 +180,48 @@ func equalInts(a, b []int) bool {
 	}
 	return true
 }
+
+// TestFashionTable reads the 10,000 Fashion-MNIST test images as a Table:
+// 784 pixel columns, 1,000 rows of each class (REFERENCES.md), and every
+// cell equal, bit for bit, to the value IDXSet gives the same pixel when
+// it scales to [0, 1] (both divide the byte by 255 in float64).
+func TestFashionTable(t *testing.T) {
+	img, err := data.ReadIDXFile(opendata.File(t, opendata.FashionTestImage))
+	if err != nil {
+		t.Fatal(err)
+	}
+	lab, err := data.ReadIDXFile(opendata.File(t, opendata.FashionTestLabel))
+	if err != nil {
+		t.Fatal(err)
+	}
+	tab, err := data.IDXTable(img, lab)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if tab.Rows != 10000 || len(tab.Columns) != 784 || tab.Columns[783].Name != "p783" {
+		t.Fatalf("%d rows, %d columns (last %q); want 10000, 784, p783", tab.Rows, len(tab.Columns), tab.Columns[len(tab.Columns)-1].Name)
+	}
+	count := map[string]int{}
+	for _, l := range tab.Labels {
+		count[l]++
+	}
+	for _, c := range tab.Classes() {
+		if count[c] != 1000 {
+			t.Errorf("class %s has %d rows, want 1000", c, count[c])
+		}
+	}
+	set, err := data.IDXSet[float64](img, lab, 10, true)
+	if err != nil {
+		t.Fatal(err)
+	}
+	for r := range tab.Rows {
+		for j := range tab.Columns {
+			if got, want := tab.Columns[j].Num[r], set.X[r*784+j]; got != want {
+				t.Fatalf("row %d pixel %d: table %v, IDXSet %v", r, j, got, want)
+			}
+		}
+		if tab.Labels[r] != set.Classes[set.Class(r)] {
+			t.Fatalf("row %d: label %q, IDXSet class %q", r, tab.Labels[r], set.Classes[set.Class(r)])
+		}
+	}
+}

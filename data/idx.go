@@ -240,31 +240,12 @@ func idxReadError(source string, off int64, what string, err error) error {
 // Mismatched arrays give a *ParseError with ErrIDXShape, a label not below
 // classes one with ErrIDXLabel and its byte offset in the label file.
 func IDXSet[T Float](images, labels *IDX, classes int, scale bool) (*Set[T], error) {
-	if images == nil || labels == nil {
-		return nil, errors.New("data: IDXSet needs both an image and a label array")
-	}
 	if classes < 2 {
 		return nil, fmt.Errorf("data: IDXSet with %d classes; a classifier needs at least 2", classes)
 	}
-	if err := images.check(); err != nil {
+	rows, features, err := idxPair(images, labels)
+	if err != nil {
 		return nil, err
-	}
-	if err := labels.check(); err != nil {
-		return nil, err
-	}
-	if len(labels.Dims) != 1 {
-		return nil, &ParseError{File: labels.Source, Err: fmt.Errorf("%w: labels have %d dimensions, want 1", ErrIDXShape, len(labels.Dims))}
-	}
-	rows := images.Dims[0]
-	if labels.Dims[0] != rows {
-		return nil, &ParseError{File: labels.Source, Err: fmt.Errorf("%w: %d labels for the %d images of %s", ErrIDXShape, labels.Dims[0], rows, images.Source)}
-	}
-	if rows == 0 {
-		return nil, &ParseError{File: images.Source, Err: ErrEmpty}
-	}
-	features := len(images.Data) / rows
-	if features == 0 {
-		return nil, &ParseError{File: images.Source, Err: fmt.Errorf("%w: images of zero size", ErrIDXShape)}
 	}
 	outputs := classes
 	if classes == 2 {
@@ -302,6 +283,35 @@ func IDXSet[T Float](images, labels *IDX, classes int, scale bool) (*Set[T], err
 	return &Set[T]{X: x, Y: y, Rows: rows, Features: features, Outputs: outputs, Classes: names}, nil
 }
 
+// idxPair checks that images and labels belong together: one label per
+// image, at least one image, images of non-zero size.
+func idxPair(images, labels *IDX) (rows, features int, err error) {
+	if images == nil || labels == nil {
+		return 0, 0, errors.New("data: images and labels need both an image and a label array")
+	}
+	if err := images.check(); err != nil {
+		return 0, 0, err
+	}
+	if err := labels.check(); err != nil {
+		return 0, 0, err
+	}
+	if len(labels.Dims) != 1 {
+		return 0, 0, &ParseError{File: labels.Source, Err: fmt.Errorf("%w: labels have %d dimensions, want 1", ErrIDXShape, len(labels.Dims))}
+	}
+	rows = images.Dims[0]
+	if labels.Dims[0] != rows {
+		return 0, 0, &ParseError{File: labels.Source, Err: fmt.Errorf("%w: %d labels for the %d images of %s", ErrIDXShape, labels.Dims[0], rows, images.Source)}
+	}
+	if rows == 0 {
+		return 0, 0, &ParseError{File: images.Source, Err: ErrEmpty}
+	}
+	features = len(images.Data) / rows
+	if features == 0 {
+		return 0, 0, &ParseError{File: images.Source, Err: fmt.Errorf("%w: images of zero size", ErrIDXShape)}
+	}
+	return rows, features, nil
+}
+
 // check verifies that an IDX built by hand is consistent: Data holds the
 // product of Dims bytes.
 func (a *IDX) check() error {
@@ -319,4 +329,31 @@ func (a *IDX) check() error {
 		return &ParseError{File: a.Source, Err: fmt.Errorf("%w: dimensions %v need %d bytes, Data holds %d", ErrIDXShape, a.Dims, n, len(a.Data))}
 	}
 	return nil
+}
+
+// IDXTable turns an images/labels pair into a Table, so that images go
+// through the same preprocessing as a CSV file's columns: one numeric
+// column per pixel, named p0, p1, … in row-major order, holding the byte
+// divided by 255 (so a pixel column of a CSV file written the same way
+// gives the same table), and the labels as their numbers, "0", "1", ….
+// Lines are the items' positions, from 1. The errors are IDXSet's.
+func IDXTable(images, labels *IDX) (*Table, error) {
+	rows, width, err := idxPair(images, labels)
+	if err != nil {
+		return nil, err
+	}
+	t := &Table{Source: images.Source, Label: "label", Rows: rows, Labels: make([]string, rows), Lines: make([]int, rows),
+		Columns: make([]Column, width)}
+	for j := range t.Columns {
+		c := &t.Columns[j]
+		c.Name, c.Kind, c.Num = "p"+strconv.Itoa(j), Numeric, make([]float64, rows)
+		for r := range rows {
+			c.Num[r] = float64(images.Data[r*width+j]) / 255
+		}
+	}
+	for r, l := range labels.Data {
+		t.Labels[r] = strconv.Itoa(int(l))
+		t.Lines[r] = r + 1
+	}
+	return t, nil
 }

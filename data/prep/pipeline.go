@@ -70,11 +70,16 @@ type Pipeline struct {
 // Step is the fitted encoding of one input column.
 //
 // A numeric value x becomes one feature (x − Mean)/Scale. When the
-// pipeline standardizes, Mean and Scale are the mean and the sample
-// standard deviation (divisor n − 1) of the column over the training rows;
-// a column that is constant on the training rows, or has a single training
-// value, has no spread to divide by and gets Scale 1, so its feature is 0
-// on the training rows. Without standardizing, Mean is 0 and Scale 1.
+// pipeline standardizes, Mean is the mean of the column over the training
+// rows and Scale its sample standard deviation (divisor n − 1), but never
+// less than SpreadFloor times the column's range (max − min) over the
+// training rows, so that no training value's feature exceeds 1/SpreadFloor
+// = 20 in magnitude: a nearly constant column (a pixel that is dark in all
+// but a few images, a flag that is almost never set) would otherwise turn
+// its rare values into features in the hundreds. A column that is constant
+// on the training rows, or has a single training value, has no spread to
+// divide by and gets Scale 1, so its feature is 0 on the training rows.
+// Without standardizing, Mean is 0 and Scale 1.
 //
 // A categorical value becomes len(Categories) features: a one-hot block
 // with the 1 at the value's index in Categories, which holds the
@@ -310,11 +315,26 @@ func fitNumeric(c *Column, rows []int, o Options) (Step, error) {
 	if !o.NoStandardize {
 		s.Mean = mean
 		if sd > 0 {
-			s.Scale = sd
+			lo, hi := math.Inf(1), math.Inf(-1)
+			for _, r := range rows {
+				if x := c.Num[r]; !flagged(c, r) && !math.IsNaN(x) {
+					lo, hi = min(lo, x), max(hi, x)
+				}
+			}
+			s.Scale = max(sd, SpreadFloor*(hi-lo))
 		}
 	}
 	return s, nil
 }
+
+// SpreadFloor is the least Scale of a standardized numeric column, as a
+// fraction of its training range (see Step). For normally distributed
+// values the range of n rows is about 6.5 standard deviations at n = 10³
+// and 9 at n = 10⁵ (the expected range of a normal sample; common
+// practice, no source), so the floor, a twentieth of the range, leaves
+// such columns alone and acts only on columns whose spread is dominated by
+// a few values.
+const SpreadFloor = 1.0 / 20
 
 func fitCategorical(c *Column, rows []int, o Options, markers []string) (Step, error) {
 	s := Step{Name: c.Name, Kind: Categorical, Scale: 1}

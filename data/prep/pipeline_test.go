@@ -143,6 +143,34 @@ func TestConstantColumn(t *testing.T) {
 	}
 }
 
+// TestSpreadFloor: a column that is 0 in 999 training rows and 1 in one
+// has sample standard deviation √(0.999·0.001·1000/999) = √(1/1000) ≈
+// 0.0316 (closed form of a 0/1 column with one 1), so standardizing
+// would put its rare value at (1 − 0.001)/0.0316 ≈ 31.6; the floor makes
+// the scale a twentieth of the range, 0.05, and the feature (1 −
+// 0.001)/0.05 = 19.98, within 20. The penguins' measurements
+// (TestPenguinsStatistics) keep their published standard deviations: the
+// floor leaves ordinary columns alone.
+func TestSpreadFloor(t *testing.T) {
+	v := make([]float64, 1000)
+	v[0] = 1
+	cols := []prep.Column{num("rare", v...)}
+	p := mustFit(t, cols, nil, prep.Options{})
+	if sd := math.Sqrt(1.0 / 1000); !(sd < prep.SpreadFloor) {
+		t.Fatalf("test premise: sd %v should be below the floor %v", sd, prep.SpreadFloor)
+	}
+	// The mean is summed relative to the first value, 1: 1 + (−999/1000),
+	// two roundings of at most 2⁻⁵³ each on values below 1, so within
+	// 2.3e-16 of 0.001.
+	if s := p.Steps[0]; s.Scale != prep.SpreadFloor || math.Abs(s.Mean-0.001) > 2.3e-16 {
+		t.Errorf("step %+v, want mean 0.001 and scale %v (the range 1 over 20)", s, prep.SpreadFloor)
+	}
+	// (1 − 0.001)/0.05 in float64: two roundings of relative size 2⁻⁵³.
+	if f := apply(t, p, cols, 0)[0]; math.Abs(f-19.98) > 1e-13 {
+		t.Errorf("the rare value's feature is %v, want 19.98", f)
+	}
+}
+
 // TestPenguinsStatistics fits the numeric columns on the 342 penguins
 // that have all four measurements and compares means and standard
 // deviations with the figures in REFERENCES.md (Palmer penguins): means

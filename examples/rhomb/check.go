@@ -45,9 +45,20 @@ func runCheck(e *env, args []string) error {
 func check[T net.Float](e *env, m *modelfile.Model[T], in, label, images, labels string, skip bool) error {
 	conf := score.New(m.Classes)
 	if images != "" {
-		s, err := readIDXSet[T](images, labels)
-		if err != nil {
-			return err
+		var s *data.Set[T]
+		if m.Pipeline != nil {
+			t, err := readIDXTable(images, labels)
+			if err != nil {
+				return err
+			}
+			if s, err = data.Encode[T](t, allRows(t.Rows), m.Pipeline, m.Classes); err != nil {
+				return dataError{err}
+			}
+		} else {
+			var err error
+			if s, err = readIDXSet[T](images, labels); err != nil {
+				return err
+			}
 		}
 		if s.Features != m.Network.In() || s.Outputs != m.Network.Out() {
 			return dataError{fmt.Errorf("%s: %d features and %d classes; the model takes %d and gives %d", images, s.Features, s.Outputs, m.Network.In(), m.Network.Out())}
@@ -88,4 +99,13 @@ func check[T net.Float](e *env, m *modelfile.Model[T], in, label, images, labels
 		fmt.Fprintf(e.stdout, "rows left out for missing values: %d\n", skipped)
 	}
 	return conf.Write(e.stdout)
+}
+
+// allRows is 0, 1, …, n−1.
+func allRows(n int) []int {
+	r := make([]int, n)
+	for i := range r {
+		r[i] = i
+	}
+	return r
 }

@@ -4,7 +4,6 @@ import (
 	"errors"
 	"fmt"
 	"os"
-	"strconv"
 
 	"github.com/rhomb/rhomb/data"
 	"github.com/rhomb/rhomb/data/prep"
@@ -24,17 +23,21 @@ type prepared[T net.Float] struct {
 // prepare reads the data the settings name, splits it (stratified, seeded)
 // and encodes it with a pipeline fitted on the training rows only.
 func prepare[T net.Float](c *config) (*prepared[T], error) {
+	var t *data.Table
 	if c.Images != "" {
-		return prepareIDX[T](c)
-	}
-	f, err := os.Open(c.Data)
-	if err != nil {
-		return nil, dataError{err}
-	}
-	defer f.Close()
-	t, err := data.ReadCSV(f, c.Data, c.csvOptions())
-	if err != nil {
-		return nil, dataError{withHint(err)}
+		var err error
+		if t, err = readIDXTable(c.Images, c.Labels); err != nil {
+			return nil, err
+		}
+	} else {
+		f, err := os.Open(c.Data)
+		if err != nil {
+			return nil, dataError{err}
+		}
+		defer f.Close()
+		if t, err = data.ReadCSV(f, c.Data, c.csvOptions()); err != nil {
+			return nil, dataError{withHint(err)}
+		}
 	}
 	r, err := recipe.Prepare[T](t, recipe.Split{Holdout: c.Holdout, Test: c.Test, Seed: c.Seed, Prep: prep.Options{
 		Impute: c.Missing == "impute", UnitNorm: c.UnitNorm, UnknownAsZeros: c.NewAsNil, Missing: c.Markers,
@@ -45,33 +48,28 @@ func prepare[T net.Float](c *config) (*prepared[T], error) {
 	return &prepared[T]{table: t, pipeline: r.Pipeline, classes: r.Classes, train: r.Train, val: r.Val, test: r.Test}, nil
 }
 
-// splitRows returns the training, validation and test rows; the last two
-// are nil when their fraction is 0.
-func splitRows(labels []int, c *config) ([][]int, error) {
-	return recipe.SplitRows(labels, c.Holdout, c.Test, c.Seed)
-}
-
-func prepareIDX[T net.Float](c *config) (*prepared[T], error) {
-	all, err := readIDXSet[T](c.Images, c.Labels)
-	if err != nil {
-		return nil, err
-	}
-	p := &prepared[T]{classes: all.Classes}
-	parts, err := splitRows(all.Labels(), c)
+// readIDXTable reads an images/labels pair as a table of pixel columns
+// (byte/255, named p0, p1, …), which then goes through the same
+// preprocessing as a CSV file's numeric columns.
+func readIDXTable(images, labels string) (*data.Table, error) {
+	img, err := data.ReadIDXFile(images)
 	if err != nil {
 		return nil, dataError{err}
 	}
-	p.train = all.Subset(parts[0])
-	if parts[1] != nil {
-		p.val = all.Subset(parts[1])
+	lab, err := data.ReadIDXFile(labels)
+	if err != nil {
+		return nil, dataError{err}
 	}
-	if parts[2] != nil {
-		p.test = all.Subset(parts[2])
+	t, err := data.IDXTable(img, lab)
+	if err != nil {
+		return nil, dataError{err}
 	}
-	return p, nil
+	return t, nil
 }
 
-// readIDXSet reads an images/labels pair, pixels scaled to [0, 1].
+// readIDXSet reads an images/labels pair, pixels scaled to [0, 1], for
+// models made before image data went through the preprocessing (their
+// files hold no pipeline).
 func readIDXSet[T net.Float](images, labels string) (*data.Set[T], error) {
 	img, err := data.ReadIDXFile(images)
 	if err != nil {
@@ -90,15 +88,6 @@ func readIDXSet[T net.Float](images, labels string) (*data.Set[T], error) {
 		return nil, dataError{err}
 	}
 	return s, nil
-}
-
-// classNames names IDX classes by their digit.
-func classNames(n int) []string {
-	s := make([]string, n)
-	for i := range s {
-		s[i] = strconv.Itoa(i)
-	}
-	return s
 }
 
 // withHint adds what to do on the command line to a reader's error, whose

@@ -133,6 +133,10 @@ type Session[T net.Float] struct {
 	majority  float64 // the validation rows' majority-class rate
 	stopAfter Stop
 	probe     *data.Set[T] // the training rows the curvature is measured on
+	// good and goodState are the weights and trainer state at the last
+	// epoch boundary, where a non-finite step sends the run back.
+	good      [][]T
+	goodState optim.State
 }
 
 // NewSession prepares a run of model on train, scored on val (which may
@@ -216,14 +220,20 @@ func (s *Session[T]) Run(ctx context.Context) (Outcome, error) {
 		s.obs.note("step size: curvature %.4g on %d training rows, stability threshold %.4g, η = %.3g × that = %.4g",
 			h, s.probe.Rows, th, s.plan.StepFactor, s.rate.base)
 	}
+	if s.good == nil {
+		s.keepGood()
+	}
 	for {
 		res, err := s.tr.Run(ctx)
 		s.out.Result = res
 		var nf *optim.NonFiniteError
-		if errors.As(err, &nf) && s.out.Lowered < maxLowered {
+		if errors.As(err, &nf) && s.out.Lowered < maxLowered && s.good != nil {
 			s.out.Lowered++
 			s.rate.base *= rateCut
-			s.obs.note("step %d gave a non-finite %s; η lowered to %.4g and the run goes on from the weights before it", nf.Step, nf.What, s.rate.base)
+			if err := s.rollBack(); err != nil {
+				return s.out, err
+			}
+			s.obs.note("step %d gave a non-finite %s; the run goes back to the end of epoch %d with η lowered to %.4g", nf.Step, nf.What, s.goodState.Epoch, s.rate.base)
 			continue
 		}
 		switch {
@@ -266,6 +276,7 @@ func (s *Session[T]) epoch(ei *optim.EpochInfo) error {
 	if err := s.remeasure(fmt.Sprintf("epoch %d", sc.Epoch)); err != nil {
 		return err
 	}
+	s.keepGood()
 	s.lastLoss = ei.Loss
 	if s.obs != nil && s.obs.Epoch != nil {
 		if err := s.obs.Epoch(&EpochReport{Info: ei, Score: sc, Best: best, Rate: s.rate.base}); err != nil {
@@ -302,7 +313,13 @@ func (s *Session[T]) remeasure(when string) error {
 	}
 	h, err := s.sharpness()
 	if err != nil {
-		return err
+		// The curvature cannot be measured where the weights are now (a
+		// non-finite loss or gradient near them): a sign of a step too
+		// large, so the rate falls as after a non-finite step.
+		s.rate.base *= rateCut
+		s.out.Lowered++
+		s.obs.note("%s: %v; η lowered to %.4g", when, err, s.rate.base)
+		return nil
 	}
 	r := min(s.plan.StepFactor*optim.StableRate(h, s.plan.Momentum, s.plan.Nesterov), 2*s.rate.base)
 	if r < s.rate.base/2 {
@@ -311,6 +328,32 @@ func (s *Session[T]) remeasure(when string) error {
 	}
 	s.rate.base = r
 	return nil
+}
+
+// keepGood remembers the weights and the trainer's state at an epoch
+// boundary (or the start).
+func (s *Session[T]) keepGood() {
+	if s.good == nil {
+		for _, p := range s.model.Params() {
+			s.good = append(s.good, make([]T, len(p.Value)))
+		}
+	}
+	for i, p := range s.model.Params() {
+		copy(s.good[i], p.Value)
+	}
+	s.goodState = s.tr.State()
+}
+
+// rollBack returns the weights and the trainer to the last epoch
+// boundary.
+func (s *Session[T]) rollBack() error {
+	for i, p := range s.model.Params() {
+		copy(p.Value, s.good[i])
+	}
+	if sy, ok := s.model.(interface{ Sync() }); ok {
+		sy.Sync()
+	}
+	return s.tr.Restore(s.goodState)
 }
 
 func (s *Session[T]) keepBest() {
