@@ -283,3 +283,73 @@ func TestResumeSameBits(t *testing.T) {
 		t.Errorf("kept %+v after resuming, %+v uninterrupted", rout.Best, wout.Best)
 	}
 }
+
+// TestSearchHalves runs successive halving (Jamieson and Talwalkar,
+// AISTATS 2016, Algorithm 1) over four candidates of a 40-epoch plan on
+// Iris and checks the algorithm's bookkeeping: all four train to the
+// first rung, E/4 = 10 epochs; the better two by validation score to
+// E/2 = 20; the winner to the end. Each cut keeps the candidates whose
+// scores rank first. And because a candidate continues where it paused,
+// the winner's weights are bit for bit those of Fit on its plan alone.
+func TestSearchHalves(t *testing.T) {
+	_, train, val := iris(t)
+	base := recipe.Plan{Hidden: []int{8}, Epochs: 40, Patience: -1, Seed: 2}
+	cands := recipe.Candidates(base, 4)
+	f, entries, err := recipe.Search(context.Background(), train, val, cands, false, nil)
+	if err != nil {
+		t.Fatal(err)
+	}
+	rounds := map[int][]int{}
+	for i, e := range entries {
+		rounds[e.Round] = append(rounds[e.Round], i)
+		want := map[int]int{1: 10, 2: 20, 3: 40}[e.Round]
+		if e.Epochs != want {
+			t.Errorf("candidate %d left in round %d after %d epochs, want %d", i+1, e.Round, e.Epochs, want)
+		}
+	}
+	if len(rounds[1]) != 2 || len(rounds[2]) != 1 || len(rounds[3]) != 1 {
+		t.Fatalf("candidates per last round %v; want two out after round 1, one after round 2, one winner", rounds)
+	}
+	better := func(a, b recipe.Score) bool {
+		return a.Value > b.Value || a.Value == b.Value && a.MinMargin > b.MinMargin
+	}
+	// After round 1 every survivor (left in round 2 or 3) ranked no lower
+	// than every candidate cut; the scores compared are those after 10
+	// epochs, which the survivors' histories hold.
+	bestAt := func(h []recipe.Score, epochs int) recipe.Score {
+		b := h[0]
+		for _, s := range h[1:epochs] {
+			if better(s, b) {
+				b = s
+			}
+		}
+		return b
+	}
+	for _, cut := range rounds[1] {
+		for _, kept := range append(rounds[2], rounds[3]...) {
+			if b := bestAt(entries[kept].History, 10); better(entries[cut].Best, b) {
+				t.Errorf("candidate %d (%+v after 10 epochs) was cut while candidate %d (%+v) went on", cut+1, entries[cut].Best, kept+1, b)
+			}
+		}
+	}
+	cut2, kept2 := rounds[2][0], rounds[3][0]
+	if b := bestAt(entries[kept2].History, 20); better(entries[cut2].Best, b) {
+		t.Errorf("round 2 cut candidate %d (%+v) for candidate %d (%+v)", cut2+1, entries[cut2].Best, kept2+1, b)
+	}
+	winner := rounds[3][0]
+	if f.Plan.Epochs != 40 || !slices.Equal(f.Plan.Hidden, entries[winner].Plan.Hidden) || f.Plan.StepFactor != entries[winner].Plan.StepFactor || f.Plan.Rho0 != entries[winner].Plan.Rho0 {
+		t.Errorf("Search returned plan %+v, the winner's is %+v", f.Plan, entries[winner].Plan)
+	}
+	alone, err := recipe.Fit(context.Background(), train, val, cands[winner], false, nil)
+	if err != nil {
+		t.Fatal(err)
+	}
+	for i, p := range alone.Model().Params() {
+		if !slices.Equal(p.Value, f.Model().Params()[i].Value) {
+			t.Fatalf("parameter %s: the searched winner differs from the same plan fitted alone", p.Name)
+		}
+	}
+	if alone.Outcome.Best != f.Outcome.Best {
+		t.Errorf("kept %+v in the search, %+v alone", f.Outcome.Best, alone.Outcome.Best)
+	}
+}

@@ -21,6 +21,8 @@ const (
 	StopCollapsed             // the run collapsed at the start (see Session.Run)
 	StopCanceled              // the context was canceled
 	StopHook                  // a caller's hook asked to stop
+	StopPaused                // RunUntil reached its epoch; Run continues
+	StopDiverged              // steps kept going non-finite after maxRollbacks returns
 )
 
 func (s Stop) String() string {
@@ -35,6 +37,10 @@ func (s Stop) String() string {
 		return "interrupted"
 	case StopHook:
 		return "stopped by a hook"
+	case StopPaused:
+		return "paused"
+	case StopDiverged:
+		return "diverged: steps kept going non-finite with ever smaller step sizes"
 	}
 	return fmt.Sprintf("Stop(%d)", int(s))
 }
@@ -108,11 +114,12 @@ type Outcome struct {
 	History           []Score
 }
 
-// maxLowered is how many times a run lowers its rate after a non-finite
-// step before it gives up (each time by rateCut).
+// maxRollbacks is how many times a run goes back to an epoch boundary
+// after a non-finite step, each time with the rate cut by rateCut, before
+// it ends (StopDiverged) with the best epoch so far.
 const (
-	maxLowered = 4
-	rateCut    = 0.25
+	maxRollbacks = 4
+	rateCut      = 0.25
 )
 
 // Session trains one model under a plan, scoring every epoch on the
@@ -132,6 +139,8 @@ type Session[T net.Float] struct {
 	lastLoss  float64 // the previous epoch's mean loss
 	majority  float64 // the validation rows' majority-class rate
 	stopAfter Stop
+	pauseAt   int          // RunUntil's epoch; 0 for none
+	rollbacks int          // returns to an epoch boundary after a non-finite step
 	probe     *data.Set[T] // the training rows the curvature is measured on
 	// good and goodState are the weights and trainer state at the last
 	// epoch boundary, where a non-finite step sends the run back.
@@ -223,11 +232,13 @@ func (s *Session[T]) Run(ctx context.Context) (Outcome, error) {
 	if s.good == nil {
 		s.keepGood()
 	}
+	s.stopAfter = StopEpochs
 	for {
 		res, err := s.tr.Run(ctx)
 		s.out.Result = res
 		var nf *optim.NonFiniteError
-		if errors.As(err, &nf) && s.out.Lowered < maxLowered && s.good != nil {
+		if errors.As(err, &nf) && s.rollbacks < maxRollbacks && s.good != nil {
+			s.rollbacks++
 			s.out.Lowered++
 			s.rate.base *= rateCut
 			if err := s.rollBack(); err != nil {
@@ -237,6 +248,9 @@ func (s *Session[T]) Run(ctx context.Context) (Outcome, error) {
 			continue
 		}
 		switch {
+		case errors.As(err, &nf) && s.out.Best.Epoch > 0:
+			s.obs.note("step %d gave a non-finite %s after %d returns to an epoch boundary; the run ends with its best epoch", nf.Step, nf.What, s.rollbacks)
+			s.out.Stop, err = StopDiverged, nil
 		case res.Status == optim.Canceled:
 			s.out.Stop = StopCanceled
 		case res.Status == optim.Stopped && s.stopAfter != StopEpochs:
@@ -246,9 +260,9 @@ func (s *Session[T]) Run(ctx context.Context) (Outcome, error) {
 		default:
 			s.out.Stop = StopEpochs
 		}
-		// A canceled run keeps its current weights, for a checkpoint to
-		// resume from; every other end puts the best epoch back.
-		if s.out.Stop != StopCanceled && s.val != nil && s.out.Best.Epoch > 0 {
+		// A canceled or paused run keeps its current weights, to resume
+		// from; every other end puts the best epoch back.
+		if s.out.Stop != StopCanceled && s.out.Stop != StopPaused && s.val != nil && s.out.Best.Epoch > 0 {
 			s.restoreBest()
 		}
 		return s.out, err
@@ -290,8 +304,21 @@ func (s *Session[T]) epoch(ei *optim.EpochInfo) error {
 	case s.val != nil && s.plan.Patience > 0 && s.since >= s.plan.Patience:
 		s.stopAfter = StopPatience
 		return optim.ErrStop
+	case s.pauseAt > 0 && sc.Epoch >= s.pauseAt && sc.Epoch < s.plan.Epochs:
+		s.stopAfter = StopPaused
+		return optim.ErrStop
 	}
 	return nil
+}
+
+// RunUntil is Run, paused at the end of the given epoch (counting from 1
+// over the whole run) with the current weights, unless the run ends
+// earlier; Run or RunUntil again continues it to the same bits as a run
+// never paused.
+func (s *Session[T]) RunUntil(ctx context.Context, epoch int) (Outcome, error) {
+	s.pauseAt = epoch
+	defer func() { s.pauseAt = 0 }()
+	return s.Run(ctx)
 }
 
 // step re-measures the curvature at steps 1, 2, 4, 8, …: while ρ grows
@@ -468,6 +495,7 @@ type SessionState struct {
 	Best      Score
 	Since     int
 	Lowered   int
+	Rollbacks int
 	History   []Score
 	// Kept holds the best epoch's parameters, in Params order, widened to
 	// float64 (exact for float32); nil before the first scored epoch.
@@ -477,7 +505,7 @@ type SessionState struct {
 // State returns a copy of the session's state, for a checkpoint.
 func (s *Session[T]) State() SessionState {
 	st := SessionState{Rate: s.rate.base, Sharpness: s.out.Sharpness, LastLoss: s.lastLoss, Best: s.out.Best,
-		Since: s.since, Lowered: s.out.Lowered, History: append([]Score(nil), s.out.History...)}
+		Since: s.since, Lowered: s.out.Lowered, Rollbacks: s.rollbacks, History: append([]Score(nil), s.out.History...)}
 	if s.val != nil && s.out.Best.Epoch > 0 {
 		for _, b := range s.best {
 			w := make([]float64, len(b))
@@ -508,7 +536,7 @@ func (s *Session[T]) Restore(st SessionState, tr optim.State) error {
 		return fmt.Errorf("recipe: the checkpoint's step size %v is not positive", st.Rate)
 	}
 	s.rate.base, s.out.Sharpness, s.lastLoss = st.Rate, st.Sharpness, st.LastLoss
-	s.out.Best, s.since, s.out.Lowered = st.Best, st.Since, st.Lowered
+	s.out.Best, s.since, s.out.Lowered, s.rollbacks = st.Best, st.Since, st.Lowered, st.Rollbacks
 	s.out.History = append([]Score(nil), st.History...)
 	return s.tr.Restore(tr)
 }

@@ -61,13 +61,14 @@ type stateJSON struct {
 	Best      Score    `json:"best"`
 	Since     int      `json:"since"`
 	Lowered   int      `json:"lowered"`
+	Rollbacks int      `json:"rollbacks"`
 	History   []Score  `json:"history"`
 }
 
 // MarshalJSON writes the state but Kept, which a model file stores as
 // tensors (net/modelfile, Model.Kept).
 func (s SessionState) MarshalJSON() ([]byte, error) {
-	return json.Marshal(stateJSON{nullable(s.Rate), nullable(s.Sharpness), nullable(s.LastLoss), s.Best, s.Since, s.Lowered, s.History})
+	return json.Marshal(stateJSON{nullable(s.Rate), nullable(s.Sharpness), nullable(s.LastLoss), s.Best, s.Since, s.Lowered, s.Rollbacks, s.History})
 }
 
 // UnmarshalJSON reads what MarshalJSON writes; Kept is left alone.
@@ -77,6 +78,6 @@ func (s *SessionState) UnmarshalJSON(b []byte) error {
 		return err
 	}
 	s.Rate, s.Sharpness, s.LastLoss = float64(j.Rate), float64(j.Sharpness), float64(j.LastLoss)
-	s.Best, s.Since, s.Lowered, s.History = j.Best, j.Since, j.Lowered, j.History
+	s.Best, s.Since, s.Lowered, s.Rollbacks, s.History = j.Best, j.Since, j.Lowered, j.Rollbacks, j.History
 	return nil
 }
