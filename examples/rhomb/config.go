@@ -64,6 +64,7 @@ type config struct {
 	Patience   int     `json:"patience"`
 	Metric     string  `json:"metric"`
 	Strict     bool    `json:"strict,omitempty"`
+	Search     int     `json:"search,omitempty"`
 }
 
 // defaultConfig is the command line's defaults: the training procedure's
@@ -115,6 +116,7 @@ func (c *config) bind(fs *flag.FlagSet) {
 	fs.IntVar(&c.Epochs, "epochs", c.Epochs, "most `epochs` to train (0: 100, more on small sets so that the run takes 3000 steps)")
 	fs.IntVar(&c.Patience, "patience", c.Patience, "stop after `N` epochs without a better validation score (0: 15, more on small sets; -1 never)")
 	fs.StringVar(&c.Metric, "metric", c.Metric, "rank epochs on the validation rows by `accuracy|balanced` accuracy; ties go to the larger minimum margin")
+	fs.IntVar(&c.Search, "search", c.Search, "race `N` (2 to 8) variations of these settings (step factor, ρ0, λ, width) by successive halving on the validation rows and keep the best (0: train these settings only)")
 	fs.BoolVar(&c.Strict, "strict", c.Strict, "fail (exit 1) when the chosen model is degenerate: one class only, no better than the majority class, or a class never recognized")
 	fs.Float64Var(&c.Decay, "decay", c.Decay, "weight decay `λ` (on the scales when normalized)")
 	fs.Float64Var(&c.Temp, "temp", c.Temp, "Langevin `temperature` T: noise √(2ηT) per step")
@@ -148,6 +150,9 @@ func (c *config) check() error {
 	}
 	if _, err := recipe.ParseMetric(c.Metric); err != nil {
 		return bad("train: -metric: %v", err)
+	}
+	if c.Search < 0 || c.Search == 1 || c.Search > 8 {
+		return bad("train: -search %d: want 0 (no search) or 2 to 8 candidates", c.Search)
 	}
 	for name, k := range c.Kinds {
 		if k != "numeric" && k != "categorical" {
@@ -318,6 +323,16 @@ func (c *config) plan() (recipe.Plan, error) {
 	}
 	if c.Batch == 0 {
 		p.Batch = math.MaxInt32 // the whole training set
+	}
+	switch c.Norm {
+	case "layer":
+		p.Norm = recipe.PerLayer
+	case "global":
+		p.Norm = recipe.Global
+	case "unit":
+		p.Norm = recipe.PerUnit
+	case "none":
+		p.Norm = recipe.Plain
 	}
 	switch c.Draw {
 	case "shuffled":

@@ -10,6 +10,7 @@ import (
 	"math"
 	"os"
 	"os/signal"
+	"strings"
 	"syscall"
 
 	"github.com/rhomb/rhomb/data"
@@ -127,9 +128,17 @@ func runTrain(e *env, args []string) error {
 }
 
 func train[T net.Float](e *env, c *config, o *runOptions) error {
+	if c.Search > 0 {
+		if err := searchable(c, o); err != nil {
+			return err
+		}
+	}
 	p, err := prepare[T](c)
 	if err != nil {
 		return err
+	}
+	if c.Search > 0 {
+		return trainSearch(e, c, o, p)
 	}
 	var (
 		n       *net.Network[T]
@@ -350,6 +359,112 @@ func train[T net.Float](e *env, c *config, o *runOptions) error {
 			return fmt.Errorf("report: %w", err)
 		}
 		fmt.Fprintf(w, "\nreport written to %s\n", o.report)
+	}
+	return nil
+}
+
+// searchable reports the flags a search cannot honour: it builds its
+// candidates with the training procedure's own network (ReLU, He-normal,
+// a constant feature, the square loss) and runs them in one process.
+func searchable(c *config, o *runOptions) error {
+	var bad string
+	switch {
+	case o.resume != "":
+		bad = "-resume"
+	case o.every > 0:
+		bad = "-save-every"
+	case o.report != "":
+		bad = "-report"
+	case o.metrics != "":
+		bad = "-metrics"
+	case c.Activation != "relu":
+		bad = "-act"
+	case c.Init != "he":
+		bad = "-init"
+	case c.NoConstant:
+		bad = "-no-constant"
+	case c.Loss != "square":
+		bad = "-loss"
+	case c.Plain:
+		bad = "-plain-readout"
+	case c.Hold != "multiplier":
+		bad = "-hold"
+	}
+	if bad != "" {
+		return usageError{fmt.Errorf("train: -search trains the procedure's own networks and cannot be combined with %s", bad)}
+	}
+	return nil
+}
+
+// trainSearch races the candidates of -search and saves the winner.
+func trainSearch[T net.Float](e *env, c *config, o *runOptions, p *prepared[T]) error {
+	if p.val == nil {
+		return usageError{errors.New("train: -search ranks candidates on validation rows; set -holdout above 0")}
+	}
+	plan, err := c.plan()
+	if err != nil {
+		return err
+	}
+	w := e.stdout
+	if !o.quiet {
+		warnImbalance(w, p)
+	}
+	obs := &recipe.Observer{Note: func(s string) {
+		if !o.quiet {
+			fmt.Fprintf(e.stderr, "note: %s\n", s)
+		}
+	}}
+	ctx, stop := signal.NotifyContext(context.Background(), os.Interrupt, syscall.SIGTERM)
+	defer stop()
+	f, entries, err := recipe.Search(ctx, p.train, p.val, recipe.Candidates(plan, c.Search), c.Balance, obs)
+	if ctx.Err() != nil {
+		return fmt.Errorf("%w during the search; nothing was saved", errInterrupted)
+	}
+	if err != nil {
+		return fmt.Errorf("search failed: %w", err)
+	}
+	fmt.Fprintf(w, "search: %d candidates by successive halving, ranked by validation %s\n", len(entries), f.Plan.Metric)
+	fmt.Fprintf(w, "%-3s %-11s %-8s %-8s %-10s %7s %9s %11s\n", "#", "step factor", "ρ0", "λ", "hidden", "epochs", "best", "min margin")
+	for i, en := range entries {
+		fmt.Fprintf(w, "%-3d %-11.3g %-8.3g %-8.3g %-10s %7d %9.4f %+11.4f\n", i+1, en.Plan.StepFactor, en.Plan.Rho0, en.Plan.Decay,
+			strings.Trim(strings.ReplaceAll(fmt.Sprint(en.Plan.Hidden), " ", ","), "[]"), en.Epochs, en.Best.Value, en.Best.MinMargin)
+	}
+	// The record says what was trained: the winner's settings.
+	won := *c
+	won.Hidden, won.Rho0, won.Decay, won.StepFactor = f.Plan.Hidden, f.Plan.Rho0, f.Plan.Decay, f.Plan.StepFactor
+	model := f.Model()
+	metrics := map[string]any{"epochs": f.Outcome.Result.Epochs, "steps": f.Outcome.Result.Steps, "best_epoch": f.Outcome.Best.Epoch,
+		"ranked_by": f.Outcome.Metric.String(), "stopped": f.Outcome.Stop.String(), "learning_rate": f.Outcome.Rate,
+		"search_candidates": len(entries), "rho": f.Network.Rho()}
+	val := confusion(model, p.val, p.classes)
+	metrics["validation_accuracy"], metrics["validation_rows"] = val.Accuracy(), p.val.Rows
+	var test *score.Confusion
+	if p.test != nil {
+		test = confusion(model, p.test, p.classes)
+		metrics["test_accuracy"], metrics["test_rows"] = test.Accuracy(), p.test.Rows
+	}
+	health := recipe.Check(model, p.val, p.classes)
+	if !health.OK() {
+		metrics["health"] = health.String()
+		if c.Strict {
+			return fmt.Errorf("the trained model is degenerate, so nothing was saved (-strict): %s", health)
+		}
+	}
+	m := &modelfile.Model[T]{Network: f.Network, Normalized: f.Normalized, Pipeline: p.pipeline, Classes: p.classes,
+		Label: c.Label, Loss: f.Loss.Name(), Training: won.record(), Metrics: metrics}
+	if err := modelfile.Save(o.out, m); err != nil {
+		return err
+	}
+	fmt.Fprintf(w, "kept candidate with step factor %.3g, ρ0 %.3g, λ %.3g, hidden %v: epoch %d of %d; saved %s\n",
+		f.Plan.StepFactor, f.Plan.Rho0, f.Plan.Decay, f.Plan.Hidden, f.Outcome.Best.Epoch, f.Outcome.Result.Epochs, o.out)
+	if !health.OK() {
+		fmt.Fprintf(w, "\nwarning: the kept model looks degenerate: %s\n(train -strict makes this an error.)\n", health)
+	}
+	fmt.Fprintf(w, "\nvalidation rows:\n")
+	val.Write(w)
+	if test != nil {
+		fmt.Fprintf(w, "\ntest rows:\n")
+		test.Write(w)
 	}
 	return nil
 }
