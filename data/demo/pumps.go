@@ -33,9 +33,9 @@ type Split[T data.Float] struct {
 // others for testing. The rows were generated independently, so the split
 // needs no shuffling.
 func Pumps[T data.Float](trainRows int) (*Split[T], error) {
-	t, err := data.ReadCSV(bytes.NewReader(CSV), "pumps.csv", data.CSVOptions{Label: Label, OnMissing: data.MissingKeep})
+	t, err := Table()
 	if err != nil {
-		return nil, fmt.Errorf("demo: %w", err)
+		return nil, err
 	}
 	if trainRows < 1 || trainRows >= t.Rows {
 		return nil, fmt.Errorf("demo: trainRows = %d; want 1 to %d", trainRows, t.Rows-1)
@@ -59,4 +59,14 @@ func Pumps[T data.Float](trainRows int) (*Split[T], error) {
 		return nil, fmt.Errorf("demo: %w", err)
 	}
 	return s, nil
+}
+
+// Table reads the embedded file as a Table, its missing cells (the
+// sensor dropouts) kept for the preprocessing to impute.
+func Table() (*data.Table, error) {
+	t, err := data.ReadCSV(bytes.NewReader(CSV), "pumps.csv", data.CSVOptions{Label: Label, OnMissing: data.MissingKeep})
+	if err != nil {
+		return nil, fmt.Errorf("demo: %w", err)
+	}
+	return t, nil
 }

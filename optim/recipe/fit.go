@@ -107,6 +107,16 @@ func Fit[T net.Float](ctx context.Context, train, val *data.Set[T], plan Plan, b
 		out, err := s.Run(ctx)
 		out.Restarts = attempt
 		f.Outcome = out
+		var nf *optim.NonFiniteError
+		if errors.As(err, &nf) && attempt < plan.Restarts {
+			obs.note("the run diverged before its first epoch ended (%v); restarting with seed %d and step factor %.3g", err, plan.Seed+1, plan.StepFactor/2)
+			plan.Seed++
+			plan.StepFactor /= 2
+			if plan.LearningRate > 0 {
+				plan.LearningRate /= 2
+			}
+			continue
+		}
 		if err != nil {
 			return f, err
 		}
@@ -121,7 +131,7 @@ func Fit[T net.Float](ctx context.Context, train, val *data.Set[T], plan Plan, b
 			continue
 		}
 		if val != nil {
-			f.Health = Check(f.Model(), val, nil)
+			f.Health = Check(f.Model(), val, val.Classes)
 			if plan.Strict && !f.Health.OK() {
 				return f, fmt.Errorf("%w: %s", ErrDegenerate, f.Health.Problems[0])
 			}

@@ -161,7 +161,7 @@ func Search[T net.Float](ctx context.Context, train, val *data.Set[T], candidate
 	w := runs[alive[0]]
 	obs.note("search: candidate %d of %d kept (validation %s %.4f)", alive[0]+1, len(candidates), w.fit.Plan.Metric, entries[alive[0]].Best.Value)
 	f := w.fit
-	f.Health = Check(f.Model(), val, nil)
+	f.Health = Check(f.Model(), val, val.Classes)
 	if f.Plan.Strict && !f.Health.OK() {
 		return f, entries, fmt.Errorf("%w: %s", ErrDegenerate, f.Health.Problems[0])
 	}

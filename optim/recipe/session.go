@@ -141,6 +141,7 @@ type Session[T net.Float] struct {
 	stopAfter Stop
 	pauseAt   int          // RunUntil's epoch; 0 for none
 	rollbacks int          // returns to an epoch boundary after a non-finite step
+	cap       float64      // the most η may become again after a rollback; 0 for no cap
 	probe     *data.Set[T] // the training rows the curvature is measured on
 	// good and goodState are the weights and trainer state at the last
 	// epoch boundary, where a non-finite step sends the run back.
@@ -241,6 +242,7 @@ func (s *Session[T]) Run(ctx context.Context) (Outcome, error) {
 			s.rollbacks++
 			s.out.Lowered++
 			s.rate.base *= rateCut
+			s.cap = s.rate.base
 			if err := s.rollBack(); err != nil {
 				return s.out, err
 			}
@@ -333,7 +335,8 @@ func (s *Session[T]) step(si *optim.StepInfo) error {
 
 // remeasure sets η = StepFactor × the stability threshold of the curvature
 // measured now. η falls at once; it rises at most twofold per measurement,
-// so that one low reading cannot throw the run.
+// so that one low reading cannot throw the run, and never again above the
+// rate a rollback set.
 func (s *Session[T]) remeasure(when string) error {
 	if s.probe == nil {
 		return nil
@@ -349,6 +352,9 @@ func (s *Session[T]) remeasure(when string) error {
 		return nil
 	}
 	r := min(s.plan.StepFactor*optim.StableRate(h, s.plan.Momentum, s.plan.Nesterov), 2*s.rate.base)
+	if s.cap > 0 {
+		r = min(r, s.cap) // a step size that diverged is not tried again
+	}
 	if r < s.rate.base/2 {
 		s.obs.note("%s: curvature %.4g; η lowered from %.4g to %.4g", when, h, s.rate.base, r)
 		s.out.Lowered++
@@ -496,6 +502,7 @@ type SessionState struct {
 	Since     int
 	Lowered   int
 	Rollbacks int
+	Cap       float64
 	History   []Score
 	// Kept holds the best epoch's parameters, in Params order, widened to
 	// float64 (exact for float32); nil before the first scored epoch.
@@ -505,7 +512,7 @@ type SessionState struct {
 // State returns a copy of the session's state, for a checkpoint.
 func (s *Session[T]) State() SessionState {
 	st := SessionState{Rate: s.rate.base, Sharpness: s.out.Sharpness, LastLoss: s.lastLoss, Best: s.out.Best,
-		Since: s.since, Lowered: s.out.Lowered, Rollbacks: s.rollbacks, History: append([]Score(nil), s.out.History...)}
+		Since: s.since, Lowered: s.out.Lowered, Rollbacks: s.rollbacks, Cap: s.cap, History: append([]Score(nil), s.out.History...)}
 	if s.val != nil && s.out.Best.Epoch > 0 {
 		for _, b := range s.best {
 			w := make([]float64, len(b))
@@ -536,7 +543,7 @@ func (s *Session[T]) Restore(st SessionState, tr optim.State) error {
 		return fmt.Errorf("recipe: the checkpoint's step size %v is not positive", st.Rate)
 	}
 	s.rate.base, s.out.Sharpness, s.lastLoss = st.Rate, st.Sharpness, st.LastLoss
-	s.out.Best, s.since, s.out.Lowered, s.rollbacks = st.Best, st.Since, st.Lowered, st.Rollbacks
+	s.out.Best, s.since, s.out.Lowered, s.rollbacks, s.cap = st.Best, st.Since, st.Lowered, st.Rollbacks, st.Cap
 	s.out.History = append([]Score(nil), st.History...)
 	return s.tr.Restore(tr)
 }

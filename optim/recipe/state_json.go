@@ -62,13 +62,14 @@ type stateJSON struct {
 	Since     int      `json:"since"`
 	Lowered   int      `json:"lowered"`
 	Rollbacks int      `json:"rollbacks"`
+	Cap       float64  `json:"rate_cap"`
 	History   []Score  `json:"history"`
 }
 
 // MarshalJSON writes the state but Kept, which a model file stores as
 // tensors (net/modelfile, Model.Kept).
 func (s SessionState) MarshalJSON() ([]byte, error) {
-	return json.Marshal(stateJSON{nullable(s.Rate), nullable(s.Sharpness), nullable(s.LastLoss), s.Best, s.Since, s.Lowered, s.Rollbacks, s.History})
+	return json.Marshal(stateJSON{nullable(s.Rate), nullable(s.Sharpness), nullable(s.LastLoss), s.Best, s.Since, s.Lowered, s.Rollbacks, s.Cap, s.History})
 }
 
 // UnmarshalJSON reads what MarshalJSON writes; Kept is left alone.
@@ -78,6 +79,6 @@ func (s *SessionState) UnmarshalJSON(b []byte) error {
 		return err
 	}
 	s.Rate, s.Sharpness, s.LastLoss = float64(j.Rate), float64(j.Sharpness), float64(j.LastLoss)
-	s.Best, s.Since, s.Lowered, s.Rollbacks, s.History = j.Best, j.Since, j.Lowered, j.Rollbacks, j.History
+	s.Best, s.Since, s.Lowered, s.Rollbacks, s.Cap, s.History = j.Best, j.Since, j.Lowered, j.Rollbacks, j.Cap, j.History
 	return nil
 }
