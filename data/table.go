@@ -44,6 +44,43 @@ func (t *Table) Column(name string) *Column {
 	return nil
 }
 
+// Subset returns a new Table holding the given rows of t, in that order (a
+// row may appear more than once): their labels, lines, and every column's
+// values and missing markers, copied, so that changing one table leaves
+// the other alone. Source, Label, the columns' names and kinds, and
+// Dropped (which describes the read of Source) are kept. A column without
+// missing markers (Missing nil) stays without. Subset panics on a row
+// outside [0, t.Rows), as an index into a slice does.
+func (t *Table) Subset(rows []int) *Table {
+	n := len(t.Labels)
+	for _, r := range rows {
+		if r < 0 || r >= n {
+			panic(fmt.Sprintf("data: Table.Subset: row %d out of range [0, %d)", r, n))
+		}
+	}
+	out := &Table{Source: t.Source, Label: t.Label, Rows: len(rows), Dropped: t.Dropped,
+		Labels: pick(t.Labels, rows), Lines: pick(t.Lines, rows), Columns: make([]Column, len(t.Columns))}
+	for j := range t.Columns {
+		c := &t.Columns[j]
+		out.Columns[j] = Column{Name: c.Name, Kind: c.Kind, Num: pick(c.Num, rows), Cat: pick(c.Cat, rows), Missing: pick(c.Missing, rows)}
+	}
+	return out
+}
+
+// pick returns s[rows[0]], s[rows[1]], …, or nil when s is nil (a column
+// keeps only one of Num and Cat; a table read without line numbers has no
+// Lines).
+func pick[E any](s []E, rows []int) []E {
+	if s == nil {
+		return nil
+	}
+	out := make([]E, len(rows))
+	for i, r := range rows {
+		out[i] = s[r]
+	}
+	return out
+}
+
 // Classes returns the distinct labels in sorted order.
 func (t *Table) Classes() []string {
 	seen := map[string]bool{}

@@ -1,5 +1,6 @@
 // Package score tallies a classifier's predictions against the truth:
-// accuracy, per-class precision, recall and F1, and the confusion matrix.
+// accuracy, balanced accuracy, per-class precision, recall and F1, and the
+// confusion matrix.
 package score
 
 import (
@@ -46,6 +47,27 @@ func (c *Confusion) Accuracy() float64 {
 		right += c.Count[i][i]
 	}
 	return float64(right) / float64(c.Total())
+}
+
+// BalancedAccuracy is the mean of the per-class recalls over the classes
+// present (support above 0), so that every class counts the same however
+// rare it is; a classifier that always answers one class scores 1/C on C
+// present classes, and a perfect one 1. NaN with no predictions. (Common
+// practice, no source: balanced accuracy as the macro-average of recall.)
+func (c *Confusion) BalancedAccuracy() float64 {
+	var sum float64
+	present := 0
+	for k := range c.Count {
+		sup := 0
+		for _, v := range c.Count[k] {
+			sup += v
+		}
+		if sup > 0 {
+			sum += float64(c.Count[k][k]) / float64(sup)
+			present++
+		}
+	}
+	return sum / float64(present)
 }
 
 // Class holds one class's figures. Precision is NaN for a class never

@@ -38,3 +38,34 @@ func TestWorkedExample(t *testing.T) {
 		t.Errorf("precision with no predictions %v, want NaN", p[0].Precision)
 	}
 }
+
+// TestBalancedAccuracy checks balanced accuracy, the mean recall over the
+// classes present, on small tallies worked by hand (common practice, no
+// source, for the definition).
+func TestBalancedAccuracy(t *testing.T) {
+	// The worked example above: recalls 3/4 and 4/6, mean 17/24.
+	c := New([]string{"a", "b"})
+	for _, p := range [][2]int{{0, 0}, {0, 0}, {0, 0}, {0, 1}, {1, 0}, {1, 0}, {1, 1}, {1, 1}, {1, 1}, {1, 1}} {
+		c.Add(p[0], p[1])
+	}
+	// Two recalls and one division by 2: a few ulps of 0.7.
+	if got := c.BalancedAccuracy(); math.Abs(got-17.0/24) > 1e-15 {
+		t.Errorf("balanced accuracy %v, want 17/24 = %v", got, 17.0/24)
+	}
+
+	// Always answering the common class of 9 against 1: accuracy 0.9,
+	// balanced accuracy (9/9 + 0/1)/2 = 0.5.
+	m := New([]string{"common", "rare", "absent"})
+	for range 9 {
+		m.Add(0, 0)
+	}
+	m.Add(1, 0)
+	// The class "absent" has no rows; it is left out of the mean, not
+	// counted as recall 0 or NaN.
+	if acc, bal := m.Accuracy(), m.BalancedAccuracy(); acc != 0.9 || bal != 0.5 {
+		t.Errorf("accuracy %v balanced %v, want 0.9 and 0.5", acc, bal)
+	}
+	if b := New([]string{"x", "y"}).BalancedAccuracy(); !math.IsNaN(b) {
+		t.Errorf("balanced accuracy with no predictions %v, want NaN", b)
+	}
+}
