@@ -353,3 +353,52 @@ func TestSearchHalves(t *testing.T) {
 		t.Errorf("kept %+v in the search, %+v alone", f.Outcome.Best, alone.Outcome.Best)
 	}
 }
+
+// TestCollapseRestarts drives a run into the collapse the session
+// watches for, on data that holds nothing to learn: Iris's labels with
+// every measurement set to zero, so that the network sees only its
+// constant feature and answers one class for every row — at best the
+// majority rate, a third (UCI description: 50 rows per species). A weight
+// decay of 10 on the scales then pulls ρ below ρ0/20 within three epochs
+// (ρ̇ = −2λρ + data term, and the data term can do no better than the
+// class shares). Fit must notice, restart once from the next seed (the
+// plan allows one restart), notice again, and report the collapse.
+func TestCollapseRestarts(t *testing.T) {
+	_, train, val := iris(t)
+	blank := func(s *data.Set[float64]) *data.Set[float64] {
+		c := *s
+		c.X = make([]float64, len(s.X))
+		return &c
+	}
+	var notes []string
+	lastRho := 0.0
+	obs := &recipe.Observer{
+		Note:  func(s string) { notes = append(notes, s) },
+		Epoch: func(r *recipe.EpochReport) error { lastRho = r.Info.Rho; return nil },
+	}
+	f, err := recipe.Fit(context.Background(), blank(train), blank(val), recipe.Plan{Hidden: []int{8}, Decay: 10, Restarts: 1, Seed: 1}, false, obs)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if f.Outcome.Stop != recipe.StopCollapsed || f.Outcome.Restarts != 1 {
+		t.Fatalf("stop %q after %d restarts; want a collapse after 1 restart", f.Outcome.Stop, f.Outcome.Restarts)
+	}
+	if f.Plan.Seed != 2 {
+		t.Errorf("the restart ran seed %d, want the next seed, 2", f.Plan.Seed)
+	}
+	restarted := 0
+	for _, n := range notes {
+		if contains(n, "collapsed at the start") {
+			restarted++
+		}
+	}
+	if restarted != 1 {
+		t.Errorf("%d restart notes, want 1: %q", restarted, notes)
+	}
+	if !(lastRho < 0.1/20) {
+		t.Errorf("ρ = %v at the last epoch; a collapse needs it below ρ0/20 = 0.005", lastRho)
+	}
+	if f.Health.OK() {
+		t.Error("the collapsed model passed the health check")
+	}
+}
