@@ -88,7 +88,7 @@ func (c *config) bind(fs *flag.FlagSet) {
 	c.Kinds = map[string]string{}
 	fs.Var(mapFlag(c.Kinds), "kind", "force column kinds: `name=numeric|categorical`, comma-separated or repeated")
 	fs.Var((*listFlag)(&c.Skip), "skip", "comma-separated `columns` to leave out")
-	fs.StringVar(&c.Missing, "missing", c.Missing, "what to do with missing cells: `impute|drop|fail` (impute: mean or most frequent level of the training rows)")
+	fs.StringVar(&c.Missing, "missing", c.Missing, "what to do with missing cells: `impute|drop|fail` (impute: mean or most frequent level of the training rows; the library's prep.Options zero value refuses them)")
 	fs.Var((*listFlag)(&c.Markers), "na", "comma-separated cell `values` that mean missing (default \"\",NA,NaN,null)")
 	fs.BoolVar(&c.UnitNorm, "unit-norm", c.UnitNorm, "scale every input row to unit length after encoding")
 	fs.BoolVar(&c.NewAsNil, "unknown-zero", c.NewAsNil, "encode a category unseen in training as all zeros instead of failing")

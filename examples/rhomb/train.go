@@ -314,11 +314,11 @@ func train[T net.Float](e *env, c *config, o *runOptions) error {
 	if p.val != nil {
 		health = recipe.Check(model, p.val, p.classes)
 		if !health.OK() {
-			metrics["health"] = health.String()
+			metrics["health"] = strings.Join(health.Problems, "; ")
 		}
 	}
 	if c.Strict && !health.OK() {
-		return fmt.Errorf("the trained model is degenerate, so nothing was saved (-strict): %s", health)
+		return fmt.Errorf("the trained model is degenerate, so nothing was saved (-strict): %s", cliHealth(health))
 	}
 	fmt.Fprintf(w, "trained %d epochs (%d steps, %s)", res.Epochs, res.Steps, out.Stop)
 	if o.out != "" {
@@ -339,7 +339,7 @@ func train[T net.Float](e *env, c *config, o *runOptions) error {
 	}
 	fmt.Fprintf(w, "train accuracy %.4f on %d rows; ρ = %.4g\n", metrics["train_accuracy"], p.train.Rows, n.Rho())
 	if !health.OK() {
-		fmt.Fprintf(w, "\nwarning: the kept model looks degenerate: %s\n(train -strict makes this an error.)\n", health)
+		fmt.Fprintf(w, "\nwarning: the kept model looks degenerate: %s\n", cliHealth(health))
 	}
 	for _, r := range []struct {
 		name string
@@ -445,9 +445,9 @@ func trainSearch[T net.Float](e *env, c *config, o *runOptions, p *prepared[T]) 
 	}
 	health := recipe.Check(model, p.val, p.classes)
 	if !health.OK() {
-		metrics["health"] = health.String()
+		metrics["health"] = strings.Join(health.Problems, "; ")
 		if c.Strict {
-			return fmt.Errorf("the trained model is degenerate, so nothing was saved (-strict): %s", health)
+			return fmt.Errorf("the trained model is degenerate, so nothing was saved (-strict): %s", cliHealth(health))
 		}
 	}
 	m := &modelfile.Model[T]{Network: f.Network, Normalized: f.Normalized, Pipeline: p.pipeline, Classes: p.classes,
@@ -458,7 +458,7 @@ func trainSearch[T net.Float](e *env, c *config, o *runOptions, p *prepared[T]) 
 	fmt.Fprintf(w, "kept candidate with step factor %.3g, ρ0 %.3g, λ %.3g, hidden %v: epoch %d of %d; saved %s\n",
 		f.Plan.StepFactor, f.Plan.Rho0, f.Plan.Decay, f.Plan.Hidden, f.Outcome.Best.Epoch, f.Outcome.Result.Epochs, o.out)
 	if !health.OK() {
-		fmt.Fprintf(w, "\nwarning: the kept model looks degenerate: %s\n(train -strict makes this an error.)\n", health)
+		fmt.Fprintf(w, "\nwarning: the kept model looks degenerate: %s\n", cliHealth(health))
 	}
 	fmt.Fprintf(w, "\nvalidation rows:\n")
 	val.Write(w)
@@ -467,6 +467,11 @@ func trainSearch[T net.Float](e *env, c *config, o *runOptions, p *prepared[T]) 
 		test.Write(w)
 	}
 	return nil
+}
+
+// cliHealth says what is wrong with a model, with what to try in flags.
+func cliHealth(h recipe.Health) string {
+	return strings.Join(h.Problems, "; ") + ". Try -balance (weight the classes), -metric balanced (rank epochs by balanced accuracy), -search 4, or more -epochs; -strict makes this an error"
 }
 
 // valAccuracy is the epoch's validation accuracy, NaN without validation
@@ -479,9 +484,9 @@ func valAccuracy[T net.Float](val *data.Set[T], r *recipe.EpochReport) float64 {
 }
 
 // imbalanceShare is the share of the training rows below which a class is
-// called rare: at 10% a model can reach 90% accuracy by never answering
+// called rare: at 15% a model can reach 85% accuracy by never answering
 // it (common practice, no source).
-const imbalanceShare = 0.10
+const imbalanceShare = 0.15
 
 // warnImbalance says when a class is rare in the training rows, and what
 // helps.

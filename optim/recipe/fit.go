@@ -222,7 +222,9 @@ type Prepared[T net.Float] struct {
 	Train, Val, Test *data.Set[T] // Val and Test are nil when their fraction is 0
 }
 
-// Split says how Prepare divides and encodes a table.
+// Split says how Prepare divides and encodes a table. rhomb train uses
+// Split{Holdout: 0.2, Seed: 1, Prep: prep.Options{Impute: true}}; the zero
+// value holds out nothing and refuses missing cells.
 type Split struct {
 	// Holdout and Test are the fractions of rows held out for validation
 	// and for a final test, stratified by class and seeded.
