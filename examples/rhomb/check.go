@@ -3,6 +3,7 @@ package main
 import (
 	"errors"
 	"fmt"
+	"github.com/rhomb/rhomb/optim/recipe"
 
 	"github.com/rhomb/rhomb/data"
 	"github.com/rhomb/rhomb/internal/score"
@@ -63,7 +64,7 @@ func check[T net.Float](e *env, m *modelfile.Model[T], in, label, images, labels
 		if s.Features != m.Network.In() || s.Outputs != m.Network.Out() {
 			return dataError{fmt.Errorf("%s: %d features and %d classes; the model takes %d and gives %d", images, s.Features, s.Outputs, m.Network.In(), m.Network.Out())}
 		}
-		predictRows(m.Network, s, func(r int, out []T) { conf.Add(s.Class(r), data.ClassOf(out)) })
+		recipe.Predict[T](m.Network, s, func(r int, out []T) { conf.Add(s.Class(r), data.ClassOf(out)) })
 		return conf.Write(e.stdout)
 	}
 	if label == "" {

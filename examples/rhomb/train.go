@@ -502,22 +502,9 @@ func warnImbalance[T net.Float](w io.Writer, p *prepared[T]) {
 	}
 }
 
-// predictRows runs the model over a set in chunks and calls f with each
-// row's outputs.
-func predictRows[T net.Float](m optim.Model[T], s *data.Set[T], f func(r int, out []T)) {
-	const chunk = 1024
-	for start := 0; start < s.Rows; start += chunk {
-		rows := min(chunk, s.Rows-start)
-		out := m.Forward(s.X[start*s.Features:(start+rows)*s.Features], rows)
-		for r := range rows {
-			f(start+r, out[r*s.Outputs:(r+1)*s.Outputs])
-		}
-	}
-}
-
 func confusion[T net.Float](m optim.Model[T], s *data.Set[T], classes []string) *score.Confusion {
 	c := score.New(classes)
-	predictRows(m, s, func(r int, out []T) { c.Add(s.Class(r), data.ClassOf(out)) })
+	recipe.Predict(m, s, func(r int, out []T) { c.Add(s.Class(r), data.ClassOf(out)) })
 	return c
 }
 
@@ -526,11 +513,5 @@ func accuracy[T net.Float](m optim.Model[T], s *data.Set[T]) float64 {
 	if s == nil {
 		return math.NaN()
 	}
-	right := 0
-	predictRows(m, s, func(r int, out []T) {
-		if data.ClassOf(out) == s.Class(r) {
-			right++
-		}
-	})
-	return float64(right) / float64(s.Rows)
+	return recipe.Evaluate(m, s).Accuracy()
 }

@@ -4,14 +4,14 @@ import (
 	"math"
 
 	"github.com/rhomb/rhomb/data"
+	"github.com/rhomb/rhomb/internal/score"
 	"github.com/rhomb/rhomb/net"
 	"github.com/rhomb/rhomb/optim"
 )
 
 // Evaluation tallies a model's predictions on a labelled set.
 type Evaluation struct {
-	// Count[i][j] rows of class i were predicted as class j.
-	Count [][]int
+	c *score.Confusion
 	// MinMargin is the smallest normalized margin over the rows (see
 	// Score.MinMargin); NaN when ρ is zero.
 	MinMargin float64
@@ -20,11 +20,11 @@ type Evaluation struct {
 // Evaluate runs the model over s in chunks (forward passes only) and
 // tallies its predictions and normalized margins.
 func Evaluate[T net.Float](m optim.Model[T], s *data.Set[T]) *Evaluation {
-	classes := max(s.Outputs, 2)
-	e := &Evaluation{Count: make([][]int, classes), MinMargin: math.Inf(1)}
-	for i := range e.Count {
-		e.Count[i] = make([]int, classes)
+	names := s.Classes
+	if len(names) != max(s.Outputs, 2) {
+		names = make([]string, max(s.Outputs, 2))
 	}
+	e := &Evaluation{c: score.New(names), MinMargin: math.Inf(1)}
 	rho := math.NaN()
 	Predict(m, s, func(r int, out []T) {
 		if math.IsNaN(rho) {
@@ -32,7 +32,7 @@ func Evaluate[T net.Float](m optim.Model[T], s *data.Set[T]) *Evaluation {
 			rho = m.Base().Rho()
 		}
 		truth := s.Class(r)
-		e.Count[truth][data.ClassOf(out)]++
+		e.c.Add(truth, data.ClassOf(out))
 		e.MinMargin = min(e.MinMargin, margin(out, s.Y[r*s.Outputs:(r+1)*s.Outputs], truth)/rho)
 	})
 	if !(rho > 0) {
@@ -68,53 +68,39 @@ func Predict[T net.Float](m optim.Model[T], s *data.Set[T], f func(r int, out []
 	}
 }
 
+// Count returns how many rows of class i were predicted as class j.
+func (e *Evaluation) Count(i, j int) int { return e.c.Count[i][j] }
+
+// Classes is the number of classes tallied.
+func (e *Evaluation) Classes() int { return len(e.c.Count) }
+
 // Rows is the number of rows tallied.
-func (e *Evaluation) Rows() int {
+func (e *Evaluation) Rows() int { return e.c.Total() }
+
+// Accuracy is the fraction of rows classified right; NaN with none.
+func (e *Evaluation) Accuracy() float64 { return e.c.Accuracy() }
+
+// Balanced is the mean recall over the classes that have rows (balanced
+// accuracy).
+func (e *Evaluation) Balanced() float64 { return e.c.BalancedAccuracy() }
+
+// Support is the number of rows of class k.
+func (e *Evaluation) Support(k int) int {
 	n := 0
-	for _, row := range e.Count {
-		for _, v := range row {
-			n += v
-		}
+	for _, v := range e.c.Count[k] {
+		n += v
 	}
 	return n
 }
 
-// Accuracy is the fraction of rows classified right; NaN with none.
-func (e *Evaluation) Accuracy() float64 {
-	right := 0
-	for i := range e.Count {
-		right += e.Count[i][i]
-	}
-	return float64(right) / float64(e.Rows())
-}
-
 // Recall is class k's fraction of rows classified right; NaN for a class
 // with no rows.
-func (e *Evaluation) Recall(k int) float64 {
-	n := 0
-	for _, v := range e.Count[k] {
-		n += v
-	}
-	return float64(e.Count[k][k]) / float64(n)
-}
-
-// Balanced is the mean recall over the classes that have rows (balanced
-// accuracy; common practice, no source).
-func (e *Evaluation) Balanced() float64 {
-	sum, n := 0.0, 0
-	for k := range e.Count {
-		if r := e.Recall(k); !math.IsNaN(r) {
-			sum += r
-			n++
-		}
-	}
-	return sum / float64(n)
-}
+func (e *Evaluation) Recall(k int) float64 { return float64(e.c.Count[k][k]) / float64(e.Support(k)) }
 
 // Predicted counts the rows predicted as each class.
 func (e *Evaluation) Predicted() []int {
-	p := make([]int, len(e.Count))
-	for _, row := range e.Count {
+	p := make([]int, len(e.c.Count))
+	for _, row := range e.c.Count {
 		for j, v := range row {
 			p[j] += v
 		}
@@ -125,12 +111,8 @@ func (e *Evaluation) Predicted() []int {
 // Majority is the share of the rows in the most frequent class.
 func (e *Evaluation) Majority() float64 {
 	most := 0
-	for _, row := range e.Count {
-		n := 0
-		for _, v := range row {
-			n += v
-		}
-		most = max(most, n)
+	for k := range e.c.Count {
+		most = max(most, e.Support(k))
 	}
 	return float64(most) / float64(e.Rows())
 }

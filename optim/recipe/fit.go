@@ -193,9 +193,9 @@ func Check[T net.Float](m optim.Model[T], s *data.Set[T], classes []string) Heal
 		h.Problems = append(h.Problems, fmt.Sprintf("its validation accuracy %.4f is no better than always answering the most frequent class (%.4f)", acc, maj))
 	}
 	if used > 1 {
-		for k := range e.Count {
+		for k := range e.Classes() {
 			if r := e.Recall(k); r == 0 {
-				h.Problems = append(h.Problems, fmt.Sprintf("it recognizes none of the %d validation rows of class %s", sumExcept(e.Count[k], -1), name(k)))
+				h.Problems = append(h.Problems, fmt.Sprintf("it recognizes none of the %d validation rows of class %s", e.Support(k), name(k)))
 			}
 		}
 	}
@@ -203,16 +203,6 @@ func Check[T net.Float](m optim.Model[T], s *data.Set[T], classes []string) Heal
 		h.Advice = "Try weighting the classes by their frequency (balance), ranking epochs by balanced accuracy, a search over a few settings, or more epochs"
 	}
 	return h
-}
-
-func sumExcept(row []int, skip int) int {
-	n := 0
-	for j, v := range row {
-		if j != skip {
-			n += v
-		}
-	}
-	return n
 }
 
 // Prepared holds a table's rows split, encoded and ready to train on.
