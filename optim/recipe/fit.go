@@ -86,8 +86,10 @@ func (f *Fitted[T]) Model() optim.Model[T] {
 // Fit builds the plan's network and trains it on train with the square
 // loss (class-weighted when balance is set), choosing the epoch by the
 // validation rows val (nil keeps the last epoch). A run that collapses at
-// the start is restarted from a fresh seed with half the step factor, at
-// most Plan.Restarts times; each restart is noted to obs.
+// the start, or diverges before its first epoch ends, is restarted from
+// the next seed with half the step factor, at most Plan.Restarts times;
+// each restart is noted to obs. The Fitted holds the attempt that was
+// kept, its Plan the seed and step factor that attempt ran with.
 func Fit[T net.Float](ctx context.Context, train, val *data.Set[T], plan Plan, balance bool, obs *Observer) (*Fitted[T], error) {
 	plan = plan.forRows(train.Rows).filled()
 	var lf loss.Func[T] = loss.Square[T]{}
