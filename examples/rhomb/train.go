@@ -260,14 +260,20 @@ func train[T net.Float](e *env, c *config, o *runOptions) error {
 		return usageError{fmt.Errorf("train: %w", err)}
 	}
 	if resumed != nil {
-		var ss recipe.SessionState
-		if resumed.Session != nil {
+		var err error
+		if resumed.Session == nil {
+			// A checkpoint written before train kept its best epoch: the
+			// trainer's state is all there is, and the run goes on from it.
+			err = sess.Trainer().Restore(*resumed.Checkpoint)
+		} else {
+			var ss recipe.SessionState
 			if err := json.Unmarshal(resumed.Session, &ss); err != nil {
 				return modelError{fmt.Errorf("%s: session record: %w", o.resume, err)}
 			}
+			ss.Kept = resumed.Kept
+			err = sess.Restore(ss, *resumed.Checkpoint)
 		}
-		ss.Kept = resumed.Kept
-		if err := sess.Restore(ss, *resumed.Checkpoint); err != nil {
+		if err != nil {
 			return modelError{fmt.Errorf("%s: %w", o.resume, err)}
 		}
 	}
