@@ -35,7 +35,7 @@ import (
 const suiteSeed = 1
 
 type suiteRow struct {
-	name                string
+	name, source        string
 	test, classes       int
 	rhombAcc, rhombBal  float64
 	refAcc, refBal      float64
@@ -58,7 +58,7 @@ func runSuiteDataset(t *testing.T, d suite.Dataset, plan recipe.Plan) suiteRow {
 	}
 	fit, test := tab.Subset(trainRows), tab.Subset(testRows)
 	split := recipe.Split{Holdout: 0.2, Seed: suiteSeed, Prep: prep.Options{Impute: true}}
-	row := suiteRow{name: d.Name, test: len(testRows)}
+	row := suiteRow{name: d.Name, source: d.Source, test: len(testRows)}
 
 	start := time.Now()
 	p, err := recipe.Prepare[float32](fit, split)
@@ -187,6 +187,10 @@ func printSuite(t *testing.T, rows []suiteRow) {
 	}
 	n := float64(len(rows))
 	fmt.Fprintf(&b, "| mean | | | %.4f | %.4f | %.4f | %.4f | %.4f | | | |\n", sr/n, sb/n, sl/n, slb/n, sm/n)
+	fmt.Fprintf(&b, "\nSources:\n")
+	for _, r := range rows {
+		fmt.Fprintf(&b, "- %s: %s\n", r.name, r.source)
+	}
 	for _, r := range rows {
 		if !r.health.OK() {
 			fmt.Fprintf(&b, "\n%s: health check: %s\n", r.name, r.health)
