@@ -489,10 +489,10 @@ func valAccuracy[T net.Float](val *data.Set[T], r *recipe.EpochReport) float64 {
 	return r.Score.Accuracy
 }
 
-// imbalanceShare is the share of the training rows below which a class is
-// called rare: at 15% a model can reach 85% accuracy by never answering
-// it (common practice, no source).
-const imbalanceShare = 0.15
+// rareRatio says when a class is rare: it holds fewer than a quarter as
+// many training rows as the largest class. A model can then score well by
+// hardly ever answering it (common practice, no source).
+const rareRatio = 0.25
 
 // warnImbalance says when a class is rare in the training rows, and what
 // helps.
@@ -501,9 +501,14 @@ func warnImbalance[T net.Float](w io.Writer, p *prepared[T]) {
 	for _, l := range p.train.Labels() {
 		counts[l]++
 	}
+	most := 0
+	for _, n := range counts {
+		most = max(most, n)
+	}
 	for k, n := range counts {
-		if share := float64(n) / float64(p.train.Rows); share < imbalanceShare && k < len(p.classes) {
-			fmt.Fprintf(w, "note: class %q holds %.1f%% of the training rows; -balance weights the classes and -metric balanced ranks epochs by balanced accuracy\n", p.classes[k], 100*share)
+		if float64(n) < rareRatio*float64(most) && k < len(p.classes) {
+			fmt.Fprintf(w, "note: class %q holds %.1f%% of the training rows (%d; the largest class %d); -balance weights the classes and -metric balanced ranks epochs by balanced accuracy\n",
+				p.classes[k], 100*float64(n)/float64(p.train.Rows), n, most)
 		}
 	}
 }
