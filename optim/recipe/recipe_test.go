@@ -402,3 +402,25 @@ func TestCollapseRestarts(t *testing.T) {
 		t.Error("the collapsed model passed the health check")
 	}
 }
+
+// TestResolvedEpochs checks the step budget of the default plan by
+// arithmetic on the documented constants: batch 32 gives ⌈rows/32⌉ steps
+// an epoch; the default 100 epochs stretch to MinSteps steps on a small
+// set and shrink to MaxSteps on a large one; patience stretches to
+// PatienceSteps; a plan that names its epochs keeps them.
+func TestResolvedEpochs(t *testing.T) {
+	for _, c := range []struct {
+		rows, epochs, patience int
+		plan                   recipe.Plan
+	}{
+		{96, 1000, 200, recipe.Plan{}},                  // 3 steps an epoch: 3000/3 and 600/3
+		{3200, 100, 15, recipe.Plan{}},                  // 100 steps an epoch: neither bound bites
+		{48000, 40, 15, recipe.Plan{}},                  // 1500 steps an epoch: 60000/1500
+		{96, 7, 4, recipe.Plan{Epochs: 7, Patience: 4}}, // named: kept
+	} {
+		p := c.plan.Resolved(c.rows)
+		if p.Epochs != c.epochs || p.Patience != c.patience {
+			t.Errorf("%d rows: %d epochs, patience %d; want %d and %d", c.rows, p.Epochs, p.Patience, c.epochs, c.patience)
+		}
+	}
+}
