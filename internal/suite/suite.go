@@ -82,7 +82,7 @@ func Datasets() []Dataset {
 			// Telephone customers; state (51 values) is a region, not an
 			// identifier, and there is no phone-number column.
 			Name: "mlc_churn", File: opendata.MLCChurn, Label: "churn",
-			Source: "modeldata::mlc_churn, customer churn from the MLC++ software, \"artificial based on claims similar to real world\" (package help); MIT; Debian r-cran-modeldata",
+			Source: "modeldata::mlc_churn, customer churn, \"artificial based on claims similar to real world\" (package help); MIT; Debian r-cran-modeldata",
 			Rows:   5000, Columns: 19,
 			Counts: map[string]int{"no": 4293, "yes": 707},
 			Facts:  modeldataFacts,
