@@ -18,6 +18,7 @@ type prepared[T net.Float] struct {
 	pipeline         *prep.Pipeline // nil for IDX data
 	classes          []string
 	train, val, test *data.Set[T] // val and test may be nil
+	unseen           []string     // held-out rows' categories unseen in training (recipe.Prepared.Unseen)
 }
 
 // prepare reads the data the settings name, splits it (stratified, seeded)
@@ -45,7 +46,7 @@ func prepare[T net.Float](c *config) (*prepared[T], error) {
 	if err != nil {
 		return nil, dataError{err}
 	}
-	return &prepared[T]{table: t, pipeline: r.Pipeline, classes: r.Classes, train: r.Train, val: r.Val, test: r.Test}, nil
+	return &prepared[T]{table: t, pipeline: r.Pipeline, classes: r.Classes, train: r.Train, val: r.Val, test: r.Test, unseen: r.Unseen}, nil
 }
 
 // readIDXTable reads an images/labels pair as a table of pixel columns

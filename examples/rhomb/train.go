@@ -186,6 +186,7 @@ func train[T net.Float](e *env, c *config, o *runOptions) error {
 	w := e.stdout
 	if !o.quiet {
 		warnImbalance(w, p)
+		warnUnseen(w, p)
 	}
 
 	var sess *recipe.Session[T]
@@ -414,6 +415,7 @@ func trainSearch[T net.Float](e *env, c *config, o *runOptions, p *prepared[T]) 
 	w := e.stdout
 	if !o.quiet {
 		warnImbalance(w, p)
+		warnUnseen(w, p)
 	}
 	obs := &recipe.Observer{Note: func(s string) {
 		if !o.quiet {
@@ -487,6 +489,13 @@ func valAccuracy[T net.Float](val *data.Set[T], r *recipe.EpochReport) float64 {
 		return math.NaN()
 	}
 	return r.Score.Accuracy
+}
+
+// warnUnseen says when held-out rows hold a category no training row has.
+func warnUnseen[T net.Float](w io.Writer, p *prepared[T]) {
+	for _, u := range p.unseen {
+		fmt.Fprintf(w, "note: held-out rows hold a category the training rows do not (%s); they are scored with it encoded as all zeros, as serving does with -unknown-zero\n", u)
+	}
 }
 
 // rareRatio says when a class is rare: it holds fewer than a quarter as

@@ -212,6 +212,13 @@ type Prepared[T net.Float] struct {
 	Pipeline         *prep.Pipeline
 	Classes          []string
 	Train, Val, Test *data.Set[T] // Val and Test are nil when their fraction is 0
+	// Unseen names, for the validation and then the test rows, the first
+	// category they hold that no training row has (column, value, file and
+	// line), when there is one; those
+	// rows are encoded with that category as all zeros (as serving does
+	// with prep.Options.UnknownAsZeros), so that a rare level the split
+	// left out of the training rows does not fail the run.
+	Unseen []string
 }
 
 // Split says how Prepare divides and encodes a table. rhomb train uses
@@ -248,12 +255,37 @@ func Prepare[T net.Float](t *data.Table, s Split) (*Prepared[T], error) {
 		if rows == nil {
 			continue
 		}
-		if sets[i], err = data.Encode[T](t, rows, pl, classes); err != nil {
+		sets[i], err = data.Encode[T](t, rows, pl, classes)
+		if i > 0 && errors.Is(err, prep.ErrUnknownCategory) {
+			// A category that only the held-out rows have (a rare level
+			// the stratified split put there) must not fail the run: those
+			// rows are scored as serving with UnknownAsZeros would see
+			// them, and the caller is told.
+			p.Unseen = append(p.Unseen, unseenWhere(err))
+			lenient := *pl
+			lenient.UnknownAsZeros = true
+			sets[i], err = data.Encode[T](t, rows, &lenient, classes)
+		}
+		if err != nil {
 			return nil, err
 		}
 	}
 	p.Train, p.Val, p.Test = sets[0], sets[1], sets[2]
 	return p, nil
+}
+
+// unseenWhere names the column, value and place of an unknown category.
+func unseenWhere(err error) string {
+	var fe *prep.FieldError
+	if !errors.As(err, &fe) {
+		return err.Error()
+	}
+	where := fmt.Sprintf("column %q, value %q", fe.Field, fe.Value)
+	var pe *data.ParseError
+	if errors.As(err, &pe) && pe.File != "" && pe.Line > 0 {
+		where += fmt.Sprintf(" at %s:%d", pe.File, pe.Line)
+	}
+	return where
 }
 
 // SplitRows returns the training, validation and test rows of a labelled

@@ -3,6 +3,7 @@ package recipe_test
 import (
 	"context"
 	"encoding/json"
+	"fmt"
 	"math"
 	"slices"
 	"testing"
@@ -421,6 +422,42 @@ func TestResolvedEpochs(t *testing.T) {
 		p := c.plan.Resolved(c.rows)
 		if p.Epochs != c.epochs || p.Patience != c.patience {
 			t.Errorf("%d rows: %d epochs, patience %d; want %d and %d", c.rows, p.Epochs, p.Patience, c.epochs, c.patience)
+		}
+	}
+}
+
+// TestPrepareUnseenCategory: a categorical column whose every row has its
+// own level (an identifier, say) leaves the held-out rows with levels no
+// training row has. Prepare must not fail: it encodes them with an
+// all-zero one-hot block, as serving does with UnknownAsZeros, and says
+// so in Unseen. (Invented data: the property holds for any table.)
+func TestPrepareUnseenCategory(t *testing.T) {
+	const n = 20
+	tab := &data.Table{Source: "ids.csv", Label: "y", Rows: n}
+	id := data.Column{Name: "id", Kind: data.Categorical}
+	x := data.Column{Name: "x", Kind: data.Numeric}
+	for r := range n {
+		id.Cat = append(id.Cat, fmt.Sprintf("id%02d", r))
+		x.Num = append(x.Num, float64(r%5))
+		tab.Labels = append(tab.Labels, []string{"a", "b"}[r%2])
+	}
+	tab.Columns = []data.Column{id, x}
+	p, err := recipe.Prepare[float64](tab, recipe.Split{Holdout: 0.25, Seed: 1})
+	if err != nil {
+		t.Fatal(err)
+	}
+	if len(p.Unseen) != 1 || !contains(p.Unseen[0], "id") {
+		t.Fatalf("Unseen = %q; want one note naming the column", p.Unseen)
+	}
+	levels := p.Train.Rows // one level per training row
+	if p.Val.Features != levels+1 {
+		t.Fatalf("%d features, want %d levels and x", p.Val.Features, levels)
+	}
+	for r := range p.Val.Rows {
+		for j, v := range p.Val.X[r*p.Val.Features : r*p.Val.Features+levels] {
+			if v != 0 {
+				t.Fatalf("validation row %d: one-hot feature %d is %v, want 0 for an unseen level", r, j, v)
+			}
 		}
 	}
 }
