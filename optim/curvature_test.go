@@ -20,6 +20,7 @@ import (
 	"math"
 	"math/cmplx"
 	"math/rand/v2"
+	"slices"
 	"testing"
 
 	"gonum.org/v1/gonum/diff/fd"
@@ -1005,7 +1006,7 @@ func cvRestores[T net.Float](t *testing.T) {
 		if !(est.Value != 0) || est.Iterations < 1 {
 			t.Errorf("%s: estimate %+v, want a nonzero value after at least one step", name, est)
 		}
-		if after := cvBits(m); !cvEqualBits(before, after) {
+		if after := cvBits(m); !slices.Equal(before, after) {
 			t.Errorf("%s: Sharpness did not restore the parameters' bits", name)
 		}
 		// On error too: a NaN target makes the loss NaN at the first probe.
@@ -1016,22 +1017,10 @@ func cvRestores[T net.Float](t *testing.T) {
 		if !errors.As(err, &se) || se.What != "loss" || se.Iteration != 1 {
 			t.Errorf("%s: NaN target gave error %v, want a *SharpnessError for the loss at iteration 1", name, err)
 		}
-		if after := cvBits(m); !cvEqualBits(before, after) {
+		if after := cvBits(m); !slices.Equal(before, after) {
 			t.Errorf("%s: Sharpness did not restore the parameters' bits after an error", name)
 		}
 	}
-}
-
-func cvEqualBits(a, b []uint64) bool {
-	if len(a) != len(b) {
-		return false
-	}
-	for i := range a {
-		if a[i] != b[i] {
-			return false
-		}
-	}
-	return true
 }
 
 // Every Value and Grad, of the trainable parameters and of the base
