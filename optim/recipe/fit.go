@@ -109,8 +109,7 @@ func Fit[T net.Float](ctx context.Context, train, val *data.Set[T], plan Plan, b
 		out, err := s.Run(ctx)
 		out.Restarts = attempt
 		f.Outcome = out
-		var nf *optim.NonFiniteError
-		if errors.As(err, &nf) && attempt < plan.Restarts {
+		if diverged, _ := divergence(err); diverged && attempt < plan.Restarts {
 			obs.note("the run diverged before its first epoch ended (%v); restarting with seed %d and step factor %.3g", err, plan.Seed+1, plan.StepFactor/2)
 			plan.Seed++
 			plan.StepFactor /= 2

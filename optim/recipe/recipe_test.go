@@ -461,3 +461,52 @@ func TestPrepareUnseenCategory(t *testing.T) {
 		}
 	}
 }
+
+// TestExplodingLossRollsBack sets the step size of a linear least-squares
+// model at four times its stability threshold, 2(1+μ)/λ_max for the heavy
+// ball (optim.StableRate; λ_max of (2/n)X̃ᵀX̃ + 2λI from gonum, as in
+// TestStepSizeLeastSquares): on a quadratic every step then grows the
+// error along the top eigenvector, so the epoch loss rises by orders of
+// magnitude (calculus of the linear recursion). The session must notice
+// an exploded epoch loss before it turns non-finite, go back to the last
+// epoch boundary with η cut fourfold — exactly the threshold, then below
+// it — and end with finite weights.
+func TestExplodingLossRollsBack(t *testing.T) {
+	_, train, val := iris(t)
+	plan := recipe.Plan{Hidden: []int{}, Norm: recipe.Plain, Decay: 1e-3, Warmup: -1, Floor: -1, Epochs: 30, Patience: -1, Restarts: -1, Seed: 1}
+	// λ_max of the objective on these rows, measured the way the session
+	// would (validated against gonum in TestStepSizeLeastSquares).
+	probe, err := recipe.Fit(context.Background(), train, nil, recipe.Plan{Hidden: []int{}, Norm: recipe.Plain, Decay: 1e-3, Epochs: 1, Seed: 1}, false, nil)
+	if err != nil {
+		t.Fatal(err)
+	}
+	plan.LearningRate = 4 * optim.StableRate(probe.Outcome.Sharpness, recipe.Defaults().Momentum, false)
+	var notes []string
+	f, err := recipe.Fit(context.Background(), train, val, plan, false, &recipe.Observer{Note: func(s string) { notes = append(notes, s) }})
+	if err != nil {
+		t.Fatal(err)
+	}
+	back, exploded := 0, false
+	for _, n := range notes {
+		if contains(n, "goes back to the end of epoch") {
+			back++
+			exploded = exploded || contains(n, "mean loss")
+		}
+	}
+	if !exploded {
+		t.Errorf("no return was for an exploded epoch loss; notes %q", notes)
+	}
+	if back == 0 {
+		t.Fatalf("no return to an epoch boundary at four times the stability threshold; notes %q", notes)
+	}
+	for _, p := range f.Model().Params() {
+		for _, v := range p.Value {
+			if math.IsNaN(v) || math.IsInf(v, 0) {
+				t.Fatalf("%s holds %v after the run", p.Name, v)
+			}
+		}
+	}
+	if f.Outcome.Lowered < back {
+		t.Errorf("η lowered %d times for %d returns", f.Outcome.Lowered, back)
+	}
+}

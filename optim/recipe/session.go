@@ -114,6 +114,34 @@ type Outcome struct {
 	History           []Score
 }
 
+// explosion is the rise of the epoch loss over the last epoch's that
+// counts as divergence.
+const explosion = 10
+
+// DivergenceError reports a run that left the region where its step is
+// stable without a non-finite step: an epoch loss that exploded, or a
+// curvature that cannot be measured. Session.Run goes back to the last
+// epoch boundary as after a non-finite step.
+type DivergenceError struct {
+	Epoch int // from 1; 0 when found between epochs
+	What  string
+}
+
+func (e *DivergenceError) Error() string { return "recipe: the run diverged: " + e.What }
+
+// divergence reports whether err says the run diverged, and how, in words.
+func divergence(err error) (bool, string) {
+	var nf *optim.NonFiniteError
+	var dv *DivergenceError
+	switch {
+	case errors.As(err, &nf):
+		return true, fmt.Sprintf("step %d gave a non-finite %s", nf.Step, nf.What)
+	case errors.As(err, &dv):
+		return true, dv.What
+	}
+	return false, ""
+}
+
 // maxRollbacks is how many times a run goes back to an epoch boundary
 // after a non-finite step, each time with the rate cut by rateCut, before
 // it ends (StopDiverged) with the best epoch so far.
@@ -237,8 +265,8 @@ func (s *Session[T]) Run(ctx context.Context) (Outcome, error) {
 	for {
 		res, err := s.tr.Run(ctx)
 		s.out.Result = res
-		var nf *optim.NonFiniteError
-		if errors.As(err, &nf) && s.rollbacks < maxRollbacks && s.good != nil {
+		diverged, what := divergence(err)
+		if diverged && s.rollbacks < maxRollbacks && s.good != nil {
 			s.rollbacks++
 			s.out.Lowered++
 			s.rate.base *= rateCut
@@ -246,12 +274,12 @@ func (s *Session[T]) Run(ctx context.Context) (Outcome, error) {
 			if err := s.rollBack(); err != nil {
 				return s.out, err
 			}
-			s.obs.note("step %d gave a non-finite %s; the run goes back to the end of epoch %d with η lowered to %.4g", nf.Step, nf.What, s.goodState.Epoch, s.rate.base)
+			s.obs.note("%s; the run goes back to the end of epoch %d with η lowered to %.4g", what, s.goodState.Epoch, s.rate.base)
 			continue
 		}
 		switch {
-		case errors.As(err, &nf) && s.out.Best.Epoch > 0:
-			s.obs.note("step %d gave a non-finite %s after %d returns to an epoch boundary; the run ends with its best epoch", nf.Step, nf.What, s.rollbacks)
+		case diverged && s.out.Best.Epoch > 0:
+			s.obs.note("%s after %d returns to an epoch boundary; the run ends with its best epoch", what, s.rollbacks)
 			s.out.Stop, err = StopDiverged, nil
 		case res.Status == optim.Canceled:
 			s.out.Stop = StopCanceled
@@ -274,9 +302,22 @@ func (s *Session[T]) Run(ctx context.Context) (Outcome, error) {
 // epoch scores the epoch, keeps the best weights and decides whether to
 // go on.
 func (s *Session[T]) epoch(ei *optim.EpochInfo) error {
-	sc := Score{Epoch: ei.Epoch + 1, Rate: s.rate.base}
+	// An epoch whose mean loss is not finite, or rose more than tenfold
+	// over the last one's, has left the region where the step is stable
+	// (common practice, no source: a stable run's epoch loss moves by a
+	// fraction, not by orders of magnitude); so has one where the
+	// curvature can no longer be measured. Its weights are not kept: the
+	// run goes back to the last epoch boundary.
+	if notFinite := ei.Loss != ei.Loss || math.IsInf(ei.Loss, 0); notFinite || ei.Loss > explosion*s.lastLoss {
+		return &DivergenceError{Epoch: ei.Epoch + 1, What: fmt.Sprintf("epoch %d's mean loss %.4g after %.4g", ei.Epoch+1, ei.Loss, s.lastLoss)}
+	}
+	rate := s.rate.base
+	if err := s.remeasure(fmt.Sprintf("epoch %d", ei.Epoch+1)); err != nil {
+		return err
+	}
+	sc := Score{Epoch: ei.Epoch + 1, Rate: rate}
 	if s.val != nil {
-		sc = s.score(ei.Epoch + 1)
+		sc = s.score(ei.Epoch+1, rate)
 	}
 	best := s.val == nil || s.out.Best.Epoch == 0 || sc.better(s.out.Best)
 	if best {
@@ -289,9 +330,6 @@ func (s *Session[T]) epoch(ei *optim.EpochInfo) error {
 		s.since++
 	}
 	s.out.History = append(s.out.History, sc)
-	if err := s.remeasure(fmt.Sprintf("epoch %d", sc.Epoch)); err != nil {
-		return err
-	}
 	s.keepGood()
 	s.lastLoss = ei.Loss
 	if s.obs != nil && s.obs.Epoch != nil {
@@ -344,12 +382,8 @@ func (s *Session[T]) remeasure(when string) error {
 	h, err := s.sharpness()
 	if err != nil {
 		// The curvature cannot be measured where the weights are now (a
-		// non-finite loss or gradient near them): a sign of a step too
-		// large, so the rate falls as after a non-finite step.
-		s.rate.base *= rateCut
-		s.out.Lowered++
-		s.obs.note("%s: %v; η lowered to %.4g", when, err, s.rate.base)
-		return nil
+		// non-finite loss or gradient near them): the step was too large.
+		return &DivergenceError{What: fmt.Sprintf("%s: %v", when, err)}
 	}
 	r := min(s.plan.StepFactor*optim.StableRate(h, s.plan.Momentum, s.plan.Nesterov), 2*s.rate.base)
 	if s.cap > 0 {
@@ -405,8 +439,8 @@ func (s *Session[T]) restoreBest() {
 }
 
 // score measures the validation rows with forward passes only.
-func (s *Session[T]) score(epoch int) Score {
-	sc := Score{Epoch: epoch, Rate: s.rate.base}
+func (s *Session[T]) score(epoch int, rate float64) Score {
+	sc := Score{Epoch: epoch, Rate: rate}
 	c := Evaluate(s.model, s.val)
 	sc.Accuracy, sc.Balanced, sc.MinMargin = c.Accuracy(), c.Balanced(), c.MinMargin
 	sc.Value = sc.Accuracy
