@@ -31,8 +31,11 @@ type DemoOptions struct {
 //
 // The network is two hidden ReLU layers of 32 behind a constant feature,
 // one global scale started at ρ0 = 0.1, trained with the square loss,
-// learning rate 0.05, minibatches of 32, λ = 1e-3 and no Langevin noise —
-// the command-line tool's defaults.
+// learning rate 0.05, minibatches of 32, λ = 1e-3 and no Langevin noise,
+// for a fixed number of epochs: the settings are fixed, rather than those
+// of the training procedure (optim/recipe, which rhomb train and rhomb
+// demo -report run), so that the README's figures show one global scale at
+// a constant rate and stay the same when the procedure's defaults change.
 func Demo(ctx context.Context, o DemoOptions) (*Run, error) {
 	if o.Epochs == 0 {
 		o.Epochs = 30
