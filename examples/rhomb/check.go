@@ -4,6 +4,7 @@ import (
 	"errors"
 	"fmt"
 	"github.com/rhomb/rhomb/optim/recipe"
+	"io"
 
 	"github.com/rhomb/rhomb/data"
 	"github.com/rhomb/rhomb/internal/score"
@@ -64,8 +65,12 @@ func check[T net.Float](e *env, m *modelfile.Model[T], in, label, images, labels
 		if s.Features != m.Network.In() || s.Outputs != m.Network.Out() {
 			return dataError{fmt.Errorf("%s: %d features and %d classes; the model takes %d and gives %d", images, s.Features, s.Outputs, m.Network.In(), m.Network.Out())}
 		}
-		recipe.Predict[T](m.Network, s, func(r int, out []T) { conf.Add(s.Class(r), data.ClassOf(out)) })
-		return conf.Write(e.stdout)
+		var bs binaryScores
+		recipe.Predict[T](m.Network, s, func(r int, out []T) {
+			conf.Add(s.Class(r), data.ClassOf(out))
+			addScore(&bs, out, s.Class(r))
+		})
+		return writeScores(e.stdout, conf, &bs)
 	}
 	if label == "" {
 		label = m.Label
@@ -78,6 +83,7 @@ func check[T net.Float](e *env, m *modelfile.Model[T], in, label, images, labels
 		index[c] = i
 	}
 	skipped := 0
+	var bs binaryScores
 	err := forEachRow(e, m, in, label, skip, func(line int, out []T, l string) error {
 		if out == nil {
 			skipped++
@@ -88,6 +94,7 @@ func check[T net.Float](e *env, m *modelfile.Model[T], in, label, images, labels
 			return dataError{&data.ParseError{File: in, Line: line, Field: label, Err: fmt.Errorf("class %q is not one the model knows (%s)", l, joinClasses(m.Classes))}}
 		}
 		conf.Add(truth, data.ClassOf(out))
+		addScore(&bs, out, truth)
 		return nil
 	})
 	if err != nil {
@@ -99,7 +106,36 @@ func check[T net.Float](e *env, m *modelfile.Model[T], in, label, images, labels
 	if skipped > 0 {
 		fmt.Fprintf(e.stdout, "rows left out for missing values: %d\n", skipped)
 	}
-	return conf.Write(e.stdout)
+	return writeScores(e.stdout, conf, &bs)
+}
+
+// binaryScores keeps a two-class model's scores (its one ±1 output) and
+// whether each row is of the second class, the +1 one.
+type binaryScores struct {
+	scores   []float64
+	positive []bool
+}
+
+// addScore records a row's score when the model has one output.
+func addScore[T net.Float](b *binaryScores, out []T, truth int) {
+	if len(out) == 1 {
+		b.scores, b.positive = append(b.scores, float64(out[0])), append(b.positive, truth == 1)
+	}
+}
+
+// writeScores prints the tally, then balanced accuracy and macro-F1, and
+// for a two-class model the areas under the ROC and precision–recall
+// curves of its scores.
+func writeScores(w io.Writer, conf *score.Confusion, b *binaryScores) error {
+	if err := conf.Write(w); err != nil {
+		return err
+	}
+	fmt.Fprintf(w, "\nbalanced accuracy %.4f  macro-F1 %.4f\n", conf.BalancedAccuracy(), conf.MacroF1())
+	if len(b.scores) > 0 && len(conf.Classes) == 2 {
+		fmt.Fprintf(w, "ROC AUC %.4f  precision-recall AUC %.4f (class %q positive; from the model's scores)\n",
+			score.ROCAUC(b.scores, b.positive), score.AveragePrecision(b.scores, b.positive), conf.Classes[1])
+	}
+	return nil
 }
 
 // allRows is 0, 1, …, n−1.

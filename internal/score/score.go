@@ -78,6 +78,24 @@ type Class struct {
 	Precision, Recall, F1 float64
 }
 
+// MacroF1 is the mean F1 over the classes present (support above 0), a
+// class never predicted counting F1 = 0 (common practice, no source:
+// the macro-average of F1). NaN with no predictions.
+func (c *Confusion) MacroF1() float64 {
+	var sum float64
+	present := 0
+	for _, k := range c.PerClass() {
+		if k.Support == 0 {
+			continue
+		}
+		present++
+		if !math.IsNaN(k.F1) {
+			sum += k.F1
+		}
+	}
+	return sum / float64(present)
+}
+
 // PerClass returns every class's precision, recall and F1 (common
 // practice, no source: precision = TP/(TP+FP), recall = TP/(TP+FN),
 // F1 their harmonic mean).
