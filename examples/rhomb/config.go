@@ -115,7 +115,7 @@ func (c *config) bind(fs *flag.FlagSet) {
 	fs.BoolVar(&c.Nesterov, "nesterov", c.Nesterov, "use Nesterov momentum")
 	fs.IntVar(&c.Epochs, "epochs", c.Epochs, "most `epochs` to train (0: 100, more on small sets so that the run takes 3000 steps, fewer on large ones so that it takes at most 60000)")
 	fs.IntVar(&c.Patience, "patience", c.Patience, "stop after `N` epochs without a better validation score (0: 15, more on small sets; -1 never)")
-	fs.StringVar(&c.Metric, "metric", c.Metric, "rank epochs on the validation rows by `accuracy|balanced` accuracy; ties go to the larger minimum margin")
+	fs.StringVar(&c.Metric, "metric", c.Metric, "rank epochs on the validation rows by `accuracy|balanced|macro-f1|auc` (balanced accuracy; macro-F1; ROC AUC of the scores, two classes only); ties go to the larger minimum margin")
 	fs.IntVar(&c.Search, "search", c.Search, "race `N` (2 to 8) variations of these settings (step factor, ρ0, λ, width) by successive halving on the validation rows and keep the best (0: train these settings only)")
 	fs.BoolVar(&c.Strict, "strict", c.Strict, "fail (exit 1) when the chosen model is degenerate: one class only, no better than the majority class, or a class never recognized")
 	fs.Float64Var(&c.Decay, "decay", c.Decay, "weight decay `λ` (on the scales when normalized)")

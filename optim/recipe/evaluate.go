@@ -12,6 +12,10 @@ import (
 // Evaluation tallies a model's predictions on a labelled set.
 type Evaluation struct {
 	c *score.Confusion
+	// scores and positive hold a two-class model's score and the truth
+	// (the +1 class) of every row, for the AUC.
+	scores   []float64
+	positive []bool
 	// MinMargin is the smallest normalized margin over the rows (see
 	// Score.MinMargin); NaN when ρ is zero.
 	MinMargin float64
@@ -33,6 +37,9 @@ func Evaluate[T net.Float](m optim.Model[T], s *data.Set[T]) *Evaluation {
 		}
 		truth := s.Class(r)
 		e.c.Add(truth, data.ClassOf(out))
+		if len(out) == 1 {
+			e.scores, e.positive = append(e.scores, float64(out[0])), append(e.positive, truth == 1)
+		}
 		e.MinMargin = min(e.MinMargin, margin(out, s.Y[r*s.Outputs:(r+1)*s.Outputs], truth)/rho)
 	})
 	if !(rho > 0) {
@@ -83,6 +90,18 @@ func (e *Evaluation) Accuracy() float64 { return e.c.Accuracy() }
 // Balanced is the mean recall over the classes that have rows (balanced
 // accuracy).
 func (e *Evaluation) Balanced() float64 { return e.c.BalancedAccuracy() }
+
+// MacroF1 is the mean F1 over the classes that have rows.
+func (e *Evaluation) MacroF1() float64 { return e.c.MacroF1() }
+
+// AUC is the area under the ROC curve of a two-class model's scores (the
+// Mann–Whitney statistic over n₊n₋); NaN for more classes.
+func (e *Evaluation) AUC() float64 {
+	if e.scores == nil {
+		return math.NaN()
+	}
+	return score.ROCAUC(e.scores, e.positive)
+}
 
 // Support is the number of rows of class k.
 func (e *Evaluation) Support(k int) int {

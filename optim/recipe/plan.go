@@ -16,6 +16,11 @@ const (
 	// Balanced is the mean over classes of each class's recall (balanced
 	// accuracy): a model that ignores a rare class scores low on it.
 	Balanced
+	// MacroF1 is the mean over classes of each class's F1.
+	MacroF1
+	// AUC is the area under the ROC curve of the model's score, for two
+	// classes only: it ranks the scores, not the answers at one threshold.
+	AUC
 )
 
 func (m Metric) String() string {
@@ -24,6 +29,10 @@ func (m Metric) String() string {
 		return "accuracy"
 	case Balanced:
 		return "balanced-accuracy"
+	case MacroF1:
+		return "macro-f1"
+	case AUC:
+		return "auc"
 	}
 	return fmt.Sprintf("Metric(%d)", int(m))
 }
@@ -35,8 +44,12 @@ func ParseMetric(s string) (Metric, error) {
 		return Accuracy, nil
 	case "balanced-accuracy", "balanced":
 		return Balanced, nil
+	case "macro-f1":
+		return MacroF1, nil
+	case "auc":
+		return AUC, nil
 	}
-	return 0, fmt.Errorf("metric %q: want accuracy or balanced", s)
+	return 0, fmt.Errorf("metric %q: want accuracy, balanced, macro-f1 or auc", s)
 }
 
 // Norm is the weight normalization a Plan builds.
@@ -276,8 +289,8 @@ func (p Plan) check() error {
 		return bad("Floor", p.Floor, "want a fraction in (0, 1] of η")
 	case p.Epochs < 1:
 		return bad("Epochs", p.Epochs, "want at least 1")
-	case p.Metric != Accuracy && p.Metric != Balanced:
-		return bad("Metric", p.Metric, "want Accuracy or Balanced")
+	case p.Metric < Accuracy || p.Metric > AUC:
+		return bad("Metric", p.Metric, "want Accuracy, Balanced, MacroF1 or AUC")
 	}
 	return nil
 }

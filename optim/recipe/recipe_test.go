@@ -144,10 +144,10 @@ func TestKeepsBestEpoch(t *testing.T) {
 			best = s
 		}
 	}
-	if best != out.Best {
+	if !best.Same(out.Best) {
 		t.Errorf("kept %+v, the history's best is %+v", out.Best, best)
 	}
-	if !slices.Equal(seen, out.History) {
+	if !slices.EqualFunc(seen, out.History, recipe.Score.Same) {
 		t.Error("the outcome's history differs from the scores the observer saw")
 	}
 	e := recipe.Evaluate(f.Model(), val)
@@ -280,7 +280,7 @@ func TestResumeSameBits(t *testing.T) {
 			t.Fatalf("parameter %s differs between the resumed and the uninterrupted run", p.Name)
 		}
 	}
-	if wout.Best != rout.Best || !slices.Equal(wout.History, rout.History) {
+	if !wout.Best.Same(rout.Best) || !slices.EqualFunc(wout.History, rout.History, recipe.Score.Same) {
 		t.Errorf("kept %+v after resuming, %+v uninterrupted", rout.Best, wout.Best)
 	}
 }
@@ -350,7 +350,7 @@ func TestSearchHalves(t *testing.T) {
 			t.Fatalf("parameter %s: the searched winner differs from the same plan fitted alone", p.Name)
 		}
 	}
-	if alone.Outcome.Best != f.Outcome.Best {
+	if !alone.Outcome.Best.Same(f.Outcome.Best) {
 		t.Errorf("kept %+v in the search, %+v alone", f.Outcome.Best, alone.Outcome.Best)
 	}
 }
@@ -508,5 +508,46 @@ func TestExplodingLossRollsBack(t *testing.T) {
 	}
 	if f.Outcome.Lowered < back {
 		t.Errorf("η lowered %d times for %d returns", f.Outcome.Lowered, back)
+	}
+}
+
+// TestRankByAUC ranks the epochs of a two-class run (Iris versicolor
+// against virginica, the two species that are not linearly separable;
+// UCI description) by the ROC AUC of the validation scores: the kept
+// epoch's value is its AUC, and the restored model's validation scores
+// give that AUC again (the same forward pass on the same weights). A
+// three-class run cannot rank by AUC and says so.
+func TestRankByAUC(t *testing.T) {
+	all, _, _ := iris(t)
+	var rows []int
+	for r := range all.Rows {
+		if all.Class(r) > 0 {
+			rows = append(rows, r)
+		}
+	}
+	two := &data.Set[float64]{Rows: len(rows), Features: 4, Outputs: 1, Classes: []string{"versicolor", "virginica"}}
+	for _, r := range rows {
+		two.X = append(two.X, all.X[r*4:(r+1)*4]...)
+		two.Y = append(two.Y, map[int]float64{1: -1, 2: 1}[all.Class(r)])
+	}
+	parts, err := recipe.SplitRows(two.Labels(), 0.3, 0, 1)
+	if err != nil {
+		t.Fatal(err)
+	}
+	train, val := two.Subset(parts[0]), two.Subset(parts[1])
+	f, err := recipe.Fit(context.Background(), train, val, recipe.Plan{Hidden: []int{8}, Metric: recipe.AUC, Seed: 1}, false, nil)
+	if err != nil {
+		t.Fatal(err)
+	}
+	b := f.Outcome.Best
+	if f.Outcome.Metric != recipe.AUC || b.Value != b.AUC || !(b.AUC > 0.5) {
+		t.Errorf("kept %+v ranked by %v; want the value to be the AUC, above chance", b, f.Outcome.Metric)
+	}
+	if got := recipe.Evaluate(f.Model(), val).AUC(); got != b.AUC {
+		t.Errorf("the restored model's AUC %v, the kept epoch's %v", got, b.AUC)
+	}
+	_, tr3, val3 := iris(t)
+	if _, err := recipe.Fit(context.Background(), tr3, val3, recipe.Plan{Metric: recipe.AUC}, false, nil); err == nil || !contains(err.Error(), "two-class") {
+		t.Errorf("ranking three classes by AUC: error %v; want one that says the AUC is for two classes", err)
 	}
 }

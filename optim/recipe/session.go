@@ -50,14 +50,23 @@ type Score struct {
 	Epoch int // from 1
 	// Value is the plan's metric on the validation rows.
 	Value float64
-	// Accuracy and Balanced are both metrics, whatever the plan ranks by.
-	Accuracy, Balanced float64
+	// Accuracy, Balanced, MacroF1 and AUC are every metric, whatever the
+	// plan ranks by; AUC is NaN with more than two classes.
+	Accuracy, Balanced, MacroF1, AUC float64
 	// MinMargin is the smallest normalized margin over the validation
 	// rows: y·f(x; V) for one output, f_y − max_{j≠y} f_j for more, with
 	// f(x; V) = f(x; W)/ρ.
 	MinMargin float64
 	// Rate is the base step size η of the epoch (before the schedule).
 	Rate float64
+}
+
+// Same reports whether s and t hold the same figures, bit for bit (a NaN,
+// such as the AUC of a many-class model, equals a NaN).
+func (s Score) Same(t Score) bool {
+	eq := func(a, b float64) bool { return math.Float64bits(a) == math.Float64bits(b) }
+	return s.Epoch == t.Epoch && eq(s.Value, t.Value) && eq(s.Accuracy, t.Accuracy) && eq(s.Balanced, t.Balanced) &&
+		eq(s.MacroF1, t.MacroF1) && eq(s.AUC, t.AUC) && eq(s.MinMargin, t.MinMargin) && eq(s.Rate, t.Rate)
 }
 
 // better reports whether s ranks above t: a higher metric, or the same
@@ -185,6 +194,9 @@ func NewSession[T net.Float](model optim.Model[T], lf loss.Func[T], train, val *
 	plan = plan.forRows(train.Rows).filled()
 	if err := plan.check(); err != nil {
 		return nil, err
+	}
+	if plan.Metric == AUC && train.Outputs != 1 {
+		return nil, fmt.Errorf("recipe: the AUC ranks a two-class model's scores; the data has %d classes: rank by balanced accuracy or macro-F1 instead", train.Outputs)
 	}
 	s := &Session[T]{model: model, lf: lf, train: train, val: val, plan: plan, obs: obs, lastLoss: math.NaN()}
 	s.out.Metric = plan.Metric
@@ -442,10 +454,15 @@ func (s *Session[T]) restoreBest() {
 func (s *Session[T]) score(epoch int, rate float64) Score {
 	sc := Score{Epoch: epoch, Rate: rate}
 	c := Evaluate(s.model, s.val)
-	sc.Accuracy, sc.Balanced, sc.MinMargin = c.Accuracy(), c.Balanced(), c.MinMargin
+	sc.Accuracy, sc.Balanced, sc.MacroF1, sc.AUC, sc.MinMargin = c.Accuracy(), c.Balanced(), c.MacroF1(), c.AUC(), c.MinMargin
 	sc.Value = sc.Accuracy
-	if s.plan.Metric == Balanced {
+	switch s.plan.Metric {
+	case Balanced:
 		sc.Value = sc.Balanced
+	case MacroF1:
+		sc.Value = sc.MacroF1
+	case AUC:
+		sc.Value = sc.AUC
 	}
 	return sc
 }

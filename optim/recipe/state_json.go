@@ -35,13 +35,15 @@ type scoreJSON struct {
 	Value     nullable `json:"value"`
 	Accuracy  nullable `json:"accuracy"`
 	Balanced  nullable `json:"balanced_accuracy"`
+	MacroF1   nullable `json:"macro_f1"`
+	AUC       nullable `json:"auc"`
 	MinMargin nullable `json:"min_margin"`
 	Rate      nullable `json:"rate"`
 }
 
 // MarshalJSON writes a score with null for a figure that is not a number.
 func (s Score) MarshalJSON() ([]byte, error) {
-	return json.Marshal(scoreJSON{s.Epoch, nullable(s.Value), nullable(s.Accuracy), nullable(s.Balanced), nullable(s.MinMargin), nullable(s.Rate)})
+	return json.Marshal(scoreJSON{s.Epoch, nullable(s.Value), nullable(s.Accuracy), nullable(s.Balanced), nullable(s.MacroF1), nullable(s.AUC), nullable(s.MinMargin), nullable(s.Rate)})
 }
 
 // UnmarshalJSON reads what MarshalJSON writes.
@@ -50,7 +52,8 @@ func (s *Score) UnmarshalJSON(b []byte) error {
 	if err := json.Unmarshal(b, &j); err != nil {
 		return err
 	}
-	*s = Score{j.Epoch, float64(j.Value), float64(j.Accuracy), float64(j.Balanced), float64(j.MinMargin), float64(j.Rate)}
+	*s = Score{Epoch: j.Epoch, Value: float64(j.Value), Accuracy: float64(j.Accuracy), Balanced: float64(j.Balanced),
+		MacroF1: float64(j.MacroF1), AUC: float64(j.AUC), MinMargin: float64(j.MinMargin), Rate: float64(j.Rate)}
 	return nil
 }
 
