@@ -4,6 +4,8 @@ import (
 	"context"
 	"errors"
 	"fmt"
+	"math"
+	"strconv"
 	"strings"
 
 	"github.com/rhomb/rhomb/data"
@@ -236,6 +238,9 @@ type Split struct {
 // preprocessing on the training rows only, and encodes each part.
 func Prepare[T net.Float](t *data.Table, s Split) (*Prepared[T], error) {
 	classes := t.Classes()
+	if err := continuousLabel(t, classes); err != nil {
+		return nil, err
+	}
 	labels, err := data.ClassIndex(t.Labels, classes)
 	if err != nil {
 		return nil, err
@@ -286,6 +291,39 @@ func unseenWhere(err error) string {
 	}
 	return where
 }
+
+// ErrContinuousLabel is wrapped by Prepare's error for a label column that
+// holds measurements rather than classes.
+var ErrContinuousLabel = errors.New("the label column looks like a measurement, not classes")
+
+// continuousLabel refuses a label column whose values are all numbers and
+// so many distinct ones that they are a measurement rather than classes:
+// more than maxNumericClasses, and either a value that is not a whole
+// number or more than one distinct value per ten rows. Numbered classes —
+// digits, ratings, a few dozen codes — pass (common practice, no source:
+// the threshold is ours, documented here).
+func continuousLabel(t *data.Table, classes []string) error {
+	if len(classes) <= maxNumericClasses {
+		return nil
+	}
+	fractional := false
+	for _, c := range classes {
+		v, err := strconv.ParseFloat(strings.TrimSpace(c), 64)
+		if err != nil || math.IsNaN(v) || math.IsInf(v, 0) {
+			return nil // a label that is not a number: classes by name
+		}
+		fractional = fractional || v != math.Trunc(v)
+	}
+	if !fractional && len(classes)*10 <= t.Rows {
+		return nil
+	}
+	return fmt.Errorf("%s: column %q: %w: %d distinct numbers in %d rows (%s and %s among them). A classifier needs a few classes: bin the values into ranges first, or check that the right column is named as the label",
+		t.Source, t.Label, ErrContinuousLabel, len(classes), t.Rows, classes[0], classes[len(classes)-1])
+}
+
+// maxNumericClasses is the most distinct numeric labels that always count
+// as classes.
+const maxNumericClasses = 20
 
 // SplitRows returns the training, validation and test rows of a labelled
 // set, stratified and seeded; the last two are nil when their fraction is 0.

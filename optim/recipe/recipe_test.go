@@ -3,6 +3,7 @@ package recipe_test
 import (
 	"context"
 	"encoding/json"
+	"errors"
 	"fmt"
 	"math"
 	"slices"
@@ -549,5 +550,38 @@ func TestRankByAUC(t *testing.T) {
 	_, tr3, val3 := iris(t)
 	if _, err := recipe.Fit(context.Background(), tr3, val3, recipe.Plan{Metric: recipe.AUC}, false, nil); err == nil || !contains(err.Error(), "two-class") {
 		t.Errorf("ranking three classes by AUC: error %v; want one that says the AUC is for two classes", err)
+	}
+}
+
+// TestContinuousLabel: a label column of measurements (a distinct
+// fractional number per row) is refused with ErrContinuousLabel, naming
+// the column; numbered classes pass — ten digits, and thirty whole-number
+// codes over 600 rows. (Invented tables: the rule is about the labels'
+// form, for any data.)
+func TestContinuousLabel(t *testing.T) {
+	table := func(rows int, label func(r int) string) *data.Table {
+		tab := &data.Table{Source: "t.csv", Label: "target", Rows: rows}
+		x := data.Column{Name: "x", Kind: data.Numeric}
+		for r := range rows {
+			x.Num = append(x.Num, float64(r%7))
+			tab.Labels = append(tab.Labels, label(r))
+		}
+		tab.Columns = []data.Column{x}
+		return tab
+	}
+	_, err := recipe.Prepare[float64](table(100, func(r int) string { return fmt.Sprintf("%.2f", 10+float64(r)*0.37) }), recipe.Split{Holdout: 0.2, Seed: 1})
+	if !errors.Is(err, recipe.ErrContinuousLabel) || !contains(err.Error(), `column "target"`) || !contains(err.Error(), "100 distinct numbers") {
+		t.Errorf("measurements as labels: error %v; want ErrContinuousLabel naming the column and the count", err)
+	}
+	for _, c := range []struct {
+		rows  int
+		label func(r int) string
+	}{
+		{200, func(r int) string { return fmt.Sprint(r % 10) }},
+		{600, func(r int) string { return fmt.Sprint(100 + r%30) }},
+	} {
+		if _, err := recipe.Prepare[float64](table(c.rows, c.label), recipe.Split{Holdout: 0.2, Seed: 1}); err != nil {
+			t.Errorf("%d rows of numbered classes refused: %v", c.rows, err)
+		}
 	}
 }
