@@ -30,6 +30,7 @@ type config struct {
 	Markers  []string          `json:"markers,omitempty"`
 	UnitNorm bool              `json:"unit_norm,omitempty"`
 	NewAsNil bool              `json:"unknown_as_zeros,omitempty"`
+	KeepIDs  bool              `json:"keep_ids,omitempty"`
 	Holdout  float64           `json:"holdout"`
 	Test     float64           `json:"test"`
 	// Network.
@@ -91,6 +92,7 @@ func (c *config) bind(fs *flag.FlagSet) {
 	fs.StringVar(&c.Missing, "missing", c.Missing, "what to do with missing cells: `impute|drop|fail` (impute: mean or most frequent level of the training rows; the library's prep.Options zero value refuses them)")
 	fs.Var((*listFlag)(&c.Markers), "na", "comma-separated cell `values` that mean missing (default \"\",NA,NaN,null)")
 	fs.BoolVar(&c.UnitNorm, "unit-norm", c.UnitNorm, "scale every input row to unit length after encoding")
+	fs.BoolVar(&c.KeepIDs, "keep-ids", c.KeepIDs, "keep categorical columns whose values are nearly all distinct (identifiers, timestamps, free text), which are refused otherwise")
 	fs.BoolVar(&c.NewAsNil, "unknown-zero", c.NewAsNil, "encode a category unseen in training as all zeros instead of failing")
 	fs.Float64Var(&c.Holdout, "holdout", c.Holdout, "`fraction` of rows held out for validation (stratified)")
 	fs.Float64Var(&c.Test, "test", c.Test, "`fraction` of rows held out for a final test (stratified)")

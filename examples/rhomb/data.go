@@ -40,9 +40,13 @@ func prepare[T net.Float](c *config) (*prepared[T], error) {
 			return nil, dataError{withHint(err)}
 		}
 	}
-	r, err := recipe.Prepare[T](t, recipe.Split{Holdout: c.Holdout, Test: c.Test, Seed: c.Seed, Prep: prep.Options{
+	r, err := recipe.Prepare[T](t, recipe.Split{Holdout: c.Holdout, Test: c.Test, Seed: c.Seed, KeepIdentifiers: c.KeepIDs, Prep: prep.Options{
 		Impute: c.Missing == "impute", UnitNorm: c.UnitNorm, UnknownAsZeros: c.NewAsNil, Missing: c.Markers,
 	}})
+	var ide *recipe.IdentifierError
+	if errors.As(err, &ide) {
+		return nil, dataError{fmt.Errorf("%w; on the command line: -skip %s leaves it out, -keep-ids keeps it", err, ide.Column)}
+	}
 	if err != nil {
 		return nil, dataError{err}
 	}

@@ -232,6 +232,9 @@ type Split struct {
 	Seed          uint64
 	// Prep configures the preprocessing, fitted on the training rows only.
 	Prep prep.Options
+	// KeepIdentifiers keeps categorical columns whose values are nearly
+	// all distinct; false refuses them (ErrIdentifierColumn).
+	KeepIdentifiers bool
 }
 
 // Prepare splits a table's rows (stratified, seeded), fits the
@@ -248,6 +251,11 @@ func Prepare[T net.Float](t *data.Table, s Split) (*Prepared[T], error) {
 	parts, err := SplitRows(labels, s.Holdout, s.Test, s.Seed)
 	if err != nil {
 		return nil, err
+	}
+	if !s.KeepIdentifiers {
+		if err := identifierColumn(t, parts[0]); err != nil {
+			return nil, err
+		}
 	}
 	pl, err := prep.Fit(t.Columns, parts[0], s.Prep)
 	if err != nil {
@@ -290,6 +298,52 @@ func unseenWhere(err error) string {
 		where += fmt.Sprintf(" at %s:%d", pe.File, pe.Line)
 	}
 	return where
+}
+
+// ErrIdentifierColumn is wrapped by Prepare's error for a categorical
+// column whose values are nearly all distinct.
+var ErrIdentifierColumn = errors.New("the column's values are nearly all distinct")
+
+// IdentifierError names a column refused for its nearly distinct values;
+// it wraps ErrIdentifierColumn.
+type IdentifierError struct {
+	Source, Column string
+	Distinct, Rows int // distinct values among the non-missing training rows
+}
+
+func (e *IdentifierError) Error() string {
+	return fmt.Sprintf("%s: column %q: %v: %d distinct values in %d training rows. It looks like an identifier, a timestamp or free text, which a classifier cannot learn from: leave the column out",
+		e.Source, e.Column, ErrIdentifierColumn, e.Distinct, e.Rows)
+}
+
+func (e *IdentifierError) Unwrap() error { return ErrIdentifierColumn }
+
+// identifierColumn refuses a categorical column with at least 90% distinct
+// values over at least 20 training rows (its non-missing ones): an
+// identifier, a timestamp or free text, which one-hot encoding turns into
+// one feature per row — nothing a classifier can learn from, and memory
+// that grows with rows × distinct values (common practice, no source: the
+// thresholds are ours, documented here).
+func identifierColumn(t *data.Table, rows []int) error {
+	for j := range t.Columns {
+		c := &t.Columns[j]
+		if c.Kind != data.Categorical {
+			continue
+		}
+		seen := map[string]struct{}{}
+		n := 0
+		for _, r := range rows {
+			if c.Missing != nil && c.Missing[r] {
+				continue
+			}
+			n++
+			seen[c.Cat[r]] = struct{}{}
+		}
+		if n >= 20 && float64(len(seen)) >= 0.9*float64(n) {
+			return &IdentifierError{Source: t.Source, Column: c.Name, Distinct: len(seen), Rows: n}
+		}
+	}
+	return nil
 }
 
 // ErrContinuousLabel is wrapped by Prepare's error for a label column that

@@ -585,3 +585,30 @@ func TestContinuousLabel(t *testing.T) {
 		}
 	}
 }
+
+// TestIdentifierColumn: a categorical column with a distinct value in
+// every row (an identifier) is refused with ErrIdentifierColumn naming
+// it, unless KeepIdentifiers; a categorical column of ten levels passes.
+// (Invented tables: the rule is about the column's form, for any data.)
+func TestIdentifierColumn(t *testing.T) {
+	tab := &data.Table{Source: "orders.csv", Label: "y", Rows: 100}
+	id := data.Column{Name: "order_id", Kind: data.Categorical}
+	site := data.Column{Name: "site", Kind: data.Categorical}
+	for r := range 100 {
+		id.Cat = append(id.Cat, fmt.Sprintf("A-%04d", r))
+		site.Cat = append(site.Cat, fmt.Sprintf("s%d", r%10))
+		tab.Labels = append(tab.Labels, []string{"a", "b"}[r%2])
+	}
+	tab.Columns = []data.Column{site, id}
+	_, err := recipe.Prepare[float64](tab, recipe.Split{Holdout: 0.2, Seed: 1})
+	if !errors.Is(err, recipe.ErrIdentifierColumn) || !contains(err.Error(), `column "order_id"`) {
+		t.Errorf("an identifier column: error %v; want ErrIdentifierColumn naming order_id", err)
+	}
+	if _, err := recipe.Prepare[float64](tab, recipe.Split{Holdout: 0.2, Seed: 1, KeepIdentifiers: true}); err != nil {
+		t.Errorf("KeepIdentifiers still refused: %v", err)
+	}
+	tab.Columns = []data.Column{site}
+	if _, err := recipe.Prepare[float64](tab, recipe.Split{Holdout: 0.2, Seed: 1}); err != nil {
+		t.Errorf("ten levels refused: %v", err)
+	}
+}
