@@ -1,5 +1,7 @@
 package net
 
+import "github.com/rhomb/rhomb/net/modelfile/schema"
+
 import "fmt"
 
 // ConstantOne appends a feature that is always 1 to every input row. A
@@ -14,7 +16,7 @@ type ConstantOne[T Float] struct {
 }
 
 func (c *ConstantOne[T]) Name() string        { return c.name }
-func (c *ConstantOne[T]) Kind() string        { return "constant-one" }
+func (c *ConstantOne[T]) Kind() string        { return schema.KindConstantOne }
 func (c *ConstantOne[T]) Params() []*Param[T] { return nil }
 
 func (c *ConstantOne[T]) Connect(in int) (int, error) {

@@ -2,6 +2,7 @@ package net
 
 import (
 	"fmt"
+	"github.com/rhomb/rhomb/net/modelfile/schema"
 
 	"github.com/rhomb/rhomb/internal/kern"
 )
@@ -25,9 +26,9 @@ func (d *Dense[T]) Name() string { return d.name }
 // Kind is "dense", or "readout" for the network's final linear layer.
 func (d *Dense[T]) Kind() string {
 	if d.readout {
-		return "readout"
+		return schema.KindReadout
 	}
-	return "dense"
+	return schema.KindDense
 }
 
 // Readout reports whether the layer is the network's linear readout.

@@ -2,9 +2,8 @@ package net
 
 import (
 	"fmt"
-	"math"
-
-	"gonum.org/v1/gonum/mat"
+	"github.com/rhomb/rhomb/internal/arith"
+	"github.com/rhomb/rhomb/net/modelfile/schema"
 )
 
 // Fit chooses how PolyReLU fits its polynomial to ReLU.
@@ -27,9 +26,9 @@ const (
 func (f Fit) String() string {
 	switch f {
 	case FitLeastSquares:
-		return "least-squares"
+		return schema.FitLeastSquares
 	case FitInterpolation:
-		return "interpolation"
+		return schema.FitInterpolation
 	}
 	return fmt.Sprintf("Fit(%d)", int(f))
 }
@@ -40,11 +39,11 @@ const (
 	// kink caps what degree buys: the uniform error only falls like 1/d,
 	// while outside [a, b] the polynomial grows like (2|t|)^d/2. Beyond 64
 	// the trade is poor.
-	PolyMaxDegree = 64
+	PolyMaxDegree = arith.PolyMaxDegree
 	// PolyPointsPerCoef sets the number of points of FitLeastSquares:
 	// 50 per coefficient, so the discrete fit is within a few parts in 10⁴
 	// of the continuous one (aliasing; see the tests).
-	PolyPointsPerCoef = 50
+	PolyPointsPerCoef = arith.PolyPointsPerCoef
 )
 
 // PolyReLU replaces the rectifier with a polynomial p of degree d that
@@ -93,7 +92,7 @@ func NewPolyReLU[T Float](name string, degree int, lo, hi float64, fit Fit) *Pol
 }
 
 func (p *PolyReLU[T]) Name() string        { return p.name }
-func (p *PolyReLU[T]) Kind() string        { return "poly-relu" }
+func (p *PolyReLU[T]) Kind() string        { return schema.KindPolyReLU }
 func (p *PolyReLU[T]) Params() []*Param[T] { return nil }
 
 // Degree returns d, the degree of the polynomial.
@@ -108,15 +107,6 @@ func (p *PolyReLU[T]) Fit() Fit { return p.fit }
 func (p *PolyReLU[T]) String() string {
 	return fmt.Sprintf("%s: degree %d on [%g, %g], %v", p.name, p.degree, p.lo, p.hi, p.fit)
 }
-
-func finite(v float64) bool { return !math.IsNaN(v) && !math.IsInf(v, 0) }
-
-// chebNode returns cos(π(2j+1)/(2m)), the j-th of the m Chebyshev nodes of
-// the first kind in [−1, 1].
-func chebNode(j, m int) float64 { return math.Cos(math.Pi * float64(2*j+1) / float64(2*m)) }
-
-// relu returns ReLU(x) at the x that maps to t.
-func (p *PolyReLU[T]) relu(t float64) float64 { return max(p.mid+t/p.scale, 0) }
 
 // Coefficients returns c_0, …, c_d, the Chebyshev coefficients of p in the
 // scaled variable t = (2x − a − b)/(b − a); c_0 is not halved. It returns
@@ -168,89 +158,26 @@ func (p *PolyReLU[T]) Monomial() []float64 {
 
 // Connect checks the settings and fits the polynomial.
 func (p *PolyReLU[T]) Connect(in int) (int, error) {
-	if p.degree < 1 || p.degree > PolyMaxDegree {
-		return 0, fmt.Errorf("polynomial ReLU degree %d: want a degree from 1 to %d", p.degree, PolyMaxDegree)
-	}
-	if !finite(p.lo) || !finite(p.hi) {
-		return 0, fmt.Errorf("polynomial ReLU interval [%v, %v]: the bounds must be finite numbers", p.lo, p.hi)
-	}
-	if !(p.lo < p.hi) {
-		return 0, fmt.Errorf("polynomial ReLU interval [%v, %v]: want lo < hi", p.lo, p.hi)
-	}
-	if w := p.hi - p.lo; math.IsInf(w, 0) || math.IsInf(2/w, 0) {
-		return 0, fmt.Errorf("polynomial ReLU interval [%v, %v]: too narrow or too wide to scale to [−1, 1]; standardize the inputs and use an interval of moderate width", p.lo, p.hi)
-	}
 	if p.fit != FitLeastSquares && p.fit != FitInterpolation {
 		return 0, fmt.Errorf("polynomial ReLU fit %v: want FitLeastSquares or FitInterpolation", p.fit)
+	}
+	fit := arith.LeastSquares
+	if p.fit == FitInterpolation {
+		fit = arith.Interpolation
+	}
+	// arith.FitPoly checks the settings and fits: the one copy of the
+	// fit, shared with serving (package net/classify).
+	q, err := arith.FitPoly(p.degree, p.lo, p.hi, fit)
+	if err != nil {
+		return 0, err
 	}
 	if in < 1 {
 		return 0, fmt.Errorf("input width %d: nothing to rectify", in)
 	}
 	p.width = in
-	p.mid = p.lo/2 + p.hi/2
-	p.scale = 2 / (p.hi - p.lo)
-	var err error
-	if p.fit == FitLeastSquares {
-		p.c, err = p.fitLeastSquares()
-	} else {
-		p.c = p.interpolate()
-	}
-	if err != nil {
-		return 0, err
-	}
+	p.mid, p.scale, p.c = q.Mid, q.Scale, q.C
 	p.dc = chebDerivative(p.c, p.scale)
 	return in, nil
-}
-
-// interpolate returns the coefficients of the interpolant at the n = d+1
-// Chebyshev nodes t_k = cos θ_k, θ_k = π(2k+1)/(2n): by the discrete
-// orthogonality of cos(jθ_k) over these nodes,
-// c_j = (2/n) Σ_k f(t_k) cos(jθ_k), with the factor 1/n for c_0.
-func (p *PolyReLU[T]) interpolate() []float64 {
-	n := p.degree + 1
-	c := make([]float64, n)
-	f := make([]float64, n)
-	for k := range n {
-		f[k] = p.relu(chebNode(k, n))
-	}
-	for j := range n {
-		s := 0.0
-		for k := range n {
-			s += f[k] * math.Cos(float64(j)*math.Pi*float64(2*k+1)/float64(2*n))
-		}
-		c[j] = 2 * s / float64(n)
-	}
-	c[0] /= 2
-	return c
-}
-
-// fitLeastSquares solves min ‖Ac − f‖₂ with A_jk = T_k(t_j) at the M
-// Chebyshev nodes, by Householder QR. In the Chebyshev basis the columns of
-// A are orthogonal over these nodes, so the problem is perfectly
-// conditioned (cond A = √2) at every degree, where the monomial basis
-// would not be.
-func (p *PolyReLU[T]) fitLeastSquares() ([]float64, error) {
-	n := p.degree + 1
-	m := PolyPointsPerCoef * n
-	a := mat.NewDense(m, n, nil)
-	f := mat.NewVecDense(m, nil)
-	for j := range m {
-		t := chebNode(j, m)
-		f.SetVec(j, p.relu(t))
-		a.Set(j, 0, 1)
-		a.Set(j, 1, t)
-		for k := 2; k < n; k++ {
-			a.Set(j, k, 2*t*a.At(j, k-1)-a.At(j, k-2))
-		}
-	}
-	var qr mat.QR
-	qr.Factorize(a)
-	var c mat.VecDense
-	if err := qr.SolveVecTo(&c, false, f); err != nil {
-		// Cannot happen for orthogonal columns; report rather than panic.
-		return nil, fmt.Errorf("polynomial ReLU least-squares fit of degree %d failed: %w", p.degree, err)
-	}
-	return append([]float64(nil), c.RawVector().Data[:n]...), nil
 }
 
 // chebDerivative returns the Chebyshev coefficients (c_0 not halved) of
@@ -270,20 +197,10 @@ func chebDerivative(c []float64, scale float64) []float64 {
 	return out
 }
 
-// clenshaw returns Σ c_k T_k(t): b_k = c_k + 2t·b_{k+1} − b_{k+2}, then
-// c_0 + t·b_1 − b_2.
-func clenshaw(c []float64, t float64) float64 {
-	var b1, b2 float64
-	for k := len(c) - 1; k >= 1; k-- {
-		b1, b2 = c[k]+2*t*b1-b2, b1
-	}
-	return c[0] + t*b1 - b2
-}
-
 func (p *PolyReLU[T]) Forward(x, y []T, rows int) {
 	x, y = x[:rows*p.width], y[:rows*p.width]
 	for i, v := range x {
-		y[i] = T(clenshaw(p.c, (float64(v)-p.mid)*p.scale))
+		y[i] = T(arith.Clenshaw(p.c, (float64(v)-p.mid)*p.scale))
 	}
 }
 
@@ -293,6 +210,6 @@ func (p *PolyReLU[T]) Backward(x, y, dy, dx []T, rows int) {
 	}
 	x, dy, dx = x[:rows*p.width], dy[:rows*p.width], dx[:rows*p.width]
 	for i, v := range x {
-		dx[i] = T(float64(dy[i]) * clenshaw(p.dc, (float64(v)-p.mid)*p.scale))
+		dx[i] = T(float64(dy[i]) * arith.Clenshaw(p.dc, (float64(v)-p.mid)*p.scale))
 	}
 }

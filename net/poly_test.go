@@ -213,10 +213,11 @@ func TestPolyReLULeastSquaresUniformError(t *testing.T) {
 //	    = (1/(2M))(1/sin(π/(2M)) − 1/sin(3π/(2M))),
 //
 // which tend to a_0 = 1/π, a_1 = 1/2 and a_2 = 2/(3π) as M grows.
-// Tolerance: the Chebyshev columns are orthogonal (cond √2), so Householder
-// QR's error bound, about M·n·ε·cond ≈ 150·3·ε·1.4 ≈ 7e-14 (Higham,
-// Accuracy and Stability of Numerical Algorithms, ch. 20, from memory),
-// gives 1e-13.
+// Tolerance: the fit (internal/arith) sums the M terms of each normal
+// equation in order; a recursive sum of M terms of size at most 1 errs by
+// at most about M·ε ≈ 150·1.1e-16 ≈ 1.7e-14 (Higham, Accuracy and
+// Stability of Numerical Algorithms, §4.2, from memory), and the
+// recurrence for T_k adds a few ε per term at degree 2, so 1e-13.
 func TestPolyReLULeastSquaresDegree2ClosedForm(t *testing.T) {
 	const m = 150
 	if m != net.PolyPointsPerCoef*3 {

@@ -2,6 +2,7 @@ package net
 
 import (
 	"fmt"
+	"github.com/rhomb/rhomb/net/modelfile/schema"
 
 	"github.com/rhomb/rhomb/internal/kern"
 )
@@ -18,7 +19,7 @@ type ReLU[T Float] struct {
 func NewReLU[T Float](name string) *ReLU[T] { return &ReLU[T]{name: name} }
 
 func (r *ReLU[T]) Name() string        { return r.name }
-func (r *ReLU[T]) Kind() string        { return "relu" }
+func (r *ReLU[T]) Kind() string        { return schema.KindReLU }
 func (r *ReLU[T]) Params() []*Param[T] { return nil }
 
 func (r *ReLU[T]) Connect(in int) (int, error) {

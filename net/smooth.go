@@ -2,6 +2,8 @@ package net
 
 import (
 	"fmt"
+	"github.com/rhomb/rhomb/internal/arith"
+	"github.com/rhomb/rhomb/net/modelfile/schema"
 	"math"
 )
 
@@ -39,7 +41,7 @@ func NewSmoothReLU[T Float](name string, sharpness float64) *SmoothReLU[T] {
 }
 
 func (s *SmoothReLU[T]) Name() string        { return s.name }
-func (s *SmoothReLU[T]) Kind() string        { return "smooth-relu" }
+func (s *SmoothReLU[T]) Kind() string        { return schema.KindSmoothReLU }
 func (s *SmoothReLU[T]) Params() []*Param[T] { return nil }
 
 // Sharpness returns β, the factor in log(1 + exp(βx))/β.
@@ -47,11 +49,8 @@ func (s *SmoothReLU[T]) Sharpness() float64 { return s.beta }
 
 // Connect checks the sharpness and the input width.
 func (s *SmoothReLU[T]) Connect(in int) (int, error) {
-	if math.IsNaN(s.beta) || math.IsInf(s.beta, 0) || s.beta <= 0 {
-		return 0, fmt.Errorf("smooth ReLU sharpness β = %v: want a finite β > 0 (larger is closer to ReLU; the largest gap is log(2)/β, at 0)", s.beta)
-	}
-	if math.IsInf(float64(T(math.Ln2/s.beta)), 0) {
-		return 0, fmt.Errorf("smooth ReLU sharpness β = %v: too small, the value at 0, log(2)/β, overflows; use a β of order 1 or larger", s.beta)
+	if err := arith.CheckSharpness[T](s.beta); err != nil {
+		return 0, err
 	}
 	if in < 1 {
 		return 0, fmt.Errorf("input width %d: nothing to rectify", in)
@@ -72,13 +71,10 @@ func sigmoid(z float64) float64 {
 
 func (s *SmoothReLU[T]) Forward(x, y []T, rows int) {
 	x, y = x[:rows*s.width], y[:rows*s.width]
-	// log(1 + e^{βx})/β = max(x, 0) + log1p(e^{−β|x|})/β: exp only sees
-	// non-positive arguments, so nothing overflows even when βx does, and
-	// the ReLU part is exact.
-	b := s.beta
+	// arith.SmoothReLU is the one copy of this arithmetic, shared with
+	// serving (package net/classify).
 	for i, v := range x {
-		u := float64(v)
-		y[i] = T(max(u, 0) + math.Log1p(math.Exp(-b*math.Abs(u)))/b)
+		y[i] = T(arith.SmoothReLU(float64(v), s.beta))
 	}
 }
 

@@ -3,28 +3,14 @@ package net
 import (
 	"errors"
 	"fmt"
+	"github.com/rhomb/rhomb/net/modelfile/schema"
 )
 
 // NodeSpec describes one built-in node: enough to build it again. Model
-// files store a network as its input width and the list of its NodeSpecs.
-type NodeSpec struct {
-	Name string `json:"name"`
-	Kind string `json:"kind"` // "constant-one", "dense", "readout", "relu", "smooth-relu", "poly-relu"
-	// Units is the width of a dense or readout layer.
-	Units int `json:"units,omitempty"`
-	// Sharpness is a smooth-relu's β.
-	Sharpness float64 `json:"sharpness,omitempty"`
-	// Degree, Lo, Hi and Fit describe a poly-relu.
-	Degree int     `json:"degree,omitempty"`
-	Lo     float64 `json:"lo,omitempty"`
-	Hi     float64 `json:"hi,omitempty"`
-	Fit    string  `json:"fit,omitempty"`
-	// Coefficients are a poly-relu's fitted Chebyshev coefficients, in the
-	// basis of t = (2x − Lo − Hi)/(Hi − Lo), stored so that a reader need
-	// not refit (and cannot refit differently). FromSpec refits and
-	// ignores them.
-	Coefficients []float64 `json:"coefficients,omitempty"`
-}
+// files store a network as its input width and the list of its NodeSpecs;
+// the type, and the names of the kinds, belong to the model file format
+// (package net/modelfile/schema).
+type NodeSpec = schema.Node
 
 // ErrCustomNode is returned by Spec for a network holding a node type of
 // the caller's own, which has no description rhomb can rebuild.
@@ -60,17 +46,17 @@ func FromSpec[T Float](inputs int, specs []NodeSpec) (*Network[T], error) {
 	b := NewBuilder[T](inputs)
 	for i, s := range specs {
 		switch s.Kind {
-		case "constant-one":
+		case schema.KindConstantOne:
 			b.ConstantFeature(s.Name)
-		case "dense":
+		case schema.KindDense:
 			b.Dense(s.Name, s.Units)
-		case "readout":
+		case schema.KindReadout:
 			b.Readout(s.Name, s.Units)
-		case "relu":
+		case schema.KindReLU:
 			b.ReLU(s.Name)
-		case "smooth-relu":
+		case schema.KindSmoothReLU:
 			b.SmoothReLU(s.Name, s.Sharpness)
-		case "poly-relu":
+		case schema.KindPolyReLU:
 			fit, err := ParseFit(s.Fit)
 			if err != nil {
 				return nil, &BuildError{Node: s.Name, Index: i, Err: err}

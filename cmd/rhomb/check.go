@@ -3,13 +3,12 @@ package main
 import (
 	"errors"
 	"fmt"
-	"github.com/rhomb/rhomb/optim/recipe"
 	"io"
 
 	"github.com/rhomb/rhomb/data"
 	"github.com/rhomb/rhomb/internal/score"
 	"github.com/rhomb/rhomb/net"
-	"github.com/rhomb/rhomb/net/modelfile"
+	"github.com/rhomb/rhomb/net/classify"
 )
 
 const checkSummary = `Measure a saved model on labelled rows: accuracy, precision, recall and F1
@@ -27,6 +26,7 @@ func runCheck(e *env, args []string) error {
 	label := fs.String("label", "", "label column `name` (default: the one the model was trained with)")
 	images := fs.String("images", "", "IDX images `file`, instead of -data")
 	labels := fs.String("labels", "", "IDX labels `file` for -images")
+	sep := fs.String("sep", ",", "field `separator` of the CSV input: one character, or \"tab\"")
 	skip := fs.Bool("skip-missing", false, "leave out rows with a missing cell (counted) instead of failing, when the model does not impute")
 	if err := parse(fs, args); err != nil {
 		return err
@@ -39,62 +39,76 @@ func runCheck(e *env, args []string) error {
 	case *images != "" && *labels == "":
 		return usageError{errors.New("check: -images needs -labels")}
 	}
-	return withModel(*model,
-		func(m *modelfile.Model[float32]) error { return check(e, m, *in, *label, *images, *labels, *skip) },
-		func(m *modelfile.Model[float64]) error { return check(e, m, *in, *label, *images, *labels, *skip) })
+	comma, err := separator(*sep)
+	if err != nil {
+		return err
+	}
+	m, err := loadServing(*model)
+	if err != nil {
+		return err
+	}
+	return check(e, m, *in, *label, *images, *labels, comma, *skip)
 }
 
-func check[T net.Float](e *env, m *modelfile.Model[T], in, label, images, labels string, skip bool) error {
-	conf := score.New(m.Classes)
+func check(e *env, m *classify.Model, in, label, images, labels string, sep rune, skip bool) error {
+	conf := score.New(m.Classes())
+	var bs binaryScores
 	if images != "" {
-		var s *data.Set[T]
-		if m.Pipeline != nil {
+		var x []float64
+		var truth []int
+		if p := m.Pipeline(); p != nil {
 			t, err := readIDXTable(images, labels)
 			if err != nil {
 				return err
 			}
-			if s, err = data.Encode[T](t, allRows(t.Rows), m.Pipeline, m.Classes); err != nil {
+			s, err := data.Encode[float64](t, allRows(t.Rows), p, m.Classes())
+			if err != nil {
 				return dataError{err}
 			}
+			x, truth = s.X, classesOf(s)
 		} else {
-			var err error
-			if s, err = readIDXSet[T](images, labels); err != nil {
+			s, err := readIDXSet[float64](images, labels)
+			if err != nil {
 				return err
 			}
+			if s.Features != m.Features() || s.Outputs != m.Outputs() {
+				return dataError{fmt.Errorf("%s: %d features and %d classes; the model takes %d and gives %d", images, s.Features, s.Outputs, m.Features(), m.Outputs())}
+			}
+			x, truth = s.X, classesOf(s)
 		}
-		if s.Features != m.Network.In() || s.Outputs != m.Network.Out() {
-			return dataError{fmt.Errorf("%s: %d features and %d classes; the model takes %d and gives %d", images, s.Features, s.Outputs, m.Network.In(), m.Network.Out())}
+		rows := len(truth)
+		answers := make([]classify.Answer, rows)
+		if err := m.ClassifyVectors(nil, x, rows, answers); err != nil {
+			return dataError{fmt.Errorf("%s: %w", images, err)}
 		}
-		var bs binaryScores
-		recipe.Predict[T](m.Network, s, func(r int, out []T) {
-			conf.Add(s.Class(r), data.ClassOf(out))
-			addScore(&bs, out, s.Class(r))
-		})
+		for r, a := range answers {
+			conf.Add(truth[r], a.Class)
+			addScore(&bs, a.Scores, truth[r])
+		}
 		return writeScores(e.stdout, conf, &bs)
 	}
 	if label == "" {
-		label = m.Label
+		label = m.Info().Label
 	}
 	if label == "" {
 		return usageError{errors.New("check: the model does not record its label column; name it with -label")}
 	}
 	index := map[string]int{}
-	for i, c := range m.Classes {
+	for i, c := range m.Classes() {
 		index[c] = i
 	}
 	skipped := 0
-	var bs binaryScores
-	err := forEachRow(e, m, in, label, skip, func(line int, out []T, l string) error {
-		if out == nil {
+	err := forEachRow(e, m, in, label, nil, sep, skip, func(row csvRow) error {
+		if !row.answered {
 			skipped++
 			return nil
 		}
-		truth, ok := index[l]
+		truth, ok := index[row.label]
 		if !ok {
-			return dataError{&data.ParseError{File: in, Line: line, Field: label, Err: fmt.Errorf("class %q is not one the model knows (%s)", l, joinClasses(m.Classes))}}
+			return dataError{&data.ParseError{File: in, Line: row.line, Field: label, Err: fmt.Errorf("class %q is not one the model knows (%s)", row.label, joinClasses(m.Classes()))}}
 		}
-		conf.Add(truth, data.ClassOf(out))
-		addScore(&bs, out, truth)
+		conf.Add(truth, row.answer.Class)
+		addScore(&bs, row.answer.Scores, truth)
 		return nil
 	})
 	if err != nil {
@@ -109,6 +123,15 @@ func check[T net.Float](e *env, m *modelfile.Model[T], in, label, images, labels
 	return writeScores(e.stdout, conf, &bs)
 }
 
+// classesOf returns each row's class index.
+func classesOf[T net.Float](s *data.Set[T]) []int {
+	c := make([]int, s.Rows)
+	for r := range c {
+		c[r] = s.Class(r)
+	}
+	return c
+}
+
 // binaryScores keeps a two-class model's scores (its one ±1 output) and
 // whether each row is of the second class, the +1 one.
 type binaryScores struct {
@@ -117,9 +140,9 @@ type binaryScores struct {
 }
 
 // addScore records a row's score when the model has one output.
-func addScore[T net.Float](b *binaryScores, out []T, truth int) {
+func addScore(b *binaryScores, out []float64, truth int) {
 	if len(out) == 1 {
-		b.scores, b.positive = append(b.scores, float64(out[0])), append(b.positive, truth == 1)
+		b.scores, b.positive = append(b.scores, out[0]), append(b.positive, truth == 1)
 	}
 }
 

@@ -3,22 +3,26 @@ package main
 import (
 	"encoding/csv"
 	"errors"
+	"fmt"
 	"io"
 	"strconv"
+	"strings"
+	"unicode/utf8"
 
-	"github.com/rhomb/rhomb/data"
 	"github.com/rhomb/rhomb/internal/atomicfile"
-	"github.com/rhomb/rhomb/net"
-	"github.com/rhomb/rhomb/net/modelfile"
+	"github.com/rhomb/rhomb/net/classify"
 )
 
 const classifySummary = `Label rows with a saved model. Reads a CSV file with a header (the model's
 input columns, in any order, others ignored), applies the model's saved
 preprocessing, and writes one output row per input row, in the same order:
 the class, then the network's score for each class (for two classes, one
-score: positive means the second class). Streams: any file size.`
+score, headed by the class a positive score means). -carry copies chosen
+input columns (an id, a timestamp) to the front of each output row, so the
+results can be joined back without relying on row order. Streams: any
+file size.`
 
-const classifyExample = `  rhomb classify -model pumps.model -data today.csv -o today-labelled.csv
+const classifyExample = `  rhomb classify -model pumps.model -data today.csv -o today-labelled.csv -carry site,read_at
   cat today.csv | rhomb classify -model pumps.model > labelled.csv`
 
 func runClassify(e *env, args []string) error {
@@ -27,18 +31,27 @@ func runClassify(e *env, args []string) error {
 	in := fs.String("data", "-", "CSV `file` to label; - reads standard input")
 	out := fs.String("o", "-", "CSV `file` to write; - writes standard output")
 	blank := fs.Bool("blank-missing", false, "write an empty output row for a row with a missing cell, instead of failing, when the model does not impute")
+	carry := fs.String("carry", "", "comma-separated input `columns` (an id, a timestamp) to copy to the output, first, so results can be joined back")
+	sep := fs.String("sep", ",", "field `separator` of the CSV input: one character, or \"tab\"")
 	if err := parse(fs, args); err != nil {
 		return err
 	}
 	if *model == "" {
 		return usageError{errors.New("classify: -model names the model file")}
 	}
+	comma, err := separator(*sep)
+	if err != nil {
+		return err
+	}
+	m, err := loadServing(*model)
+	if err != nil {
+		return err
+	}
 	var w io.Writer = e.stdout
 	var f *atomicfile.File
 	if *out != "-" {
 		// Write beside the target and rename at the end, so a failed run
 		// leaves no half-written output.
-		var err error
 		if f, err = atomicfile.Create(*out); err != nil {
 			return err
 		}
@@ -46,10 +59,7 @@ func runClassify(e *env, args []string) error {
 		w = f
 	}
 	cw := csv.NewWriter(w)
-	err := withModel(*model,
-		func(m *modelfile.Model[float32]) error { return classify(e, m, *in, cw, *blank) },
-		func(m *modelfile.Model[float64]) error { return classify(e, m, *in, cw, *blank) })
-	if err != nil {
+	if err := classifyRows(e, m, *in, splitList(*carry), comma, cw, *blank); err != nil {
 		return err
 	}
 	cw.Flush()
@@ -62,37 +72,79 @@ func runClassify(e *env, args []string) error {
 	return nil
 }
 
-func classify[T net.Float](e *env, m *modelfile.Model[T], in string, cw *csv.Writer, blank bool) error {
-	head := []string{"class"}
-	if m.Network.Out() == 1 {
-		head = append(head, "score")
-	} else {
-		for _, c := range m.Classes {
-			head = append(head, "score:"+c)
+// separator reads the -sep flag.
+func separator(s string) (rune, error) {
+	if s == "tab" || s == `\t` {
+		return '\t', nil
+	}
+	r := []rune(s)
+	if len(r) != 1 || r[0] == '"' || r[0] == '\r' || r[0] == '\n' || r[0] == utf8.RuneError {
+		return 0, usageError{fmt.Errorf("-sep %q: give one character other than a quote or a line break (or \"tab\")", s)}
+	}
+	return r[0], nil
+}
+
+// splitList splits a comma-separated flag value, dropping blanks.
+func splitList(s string) []string {
+	var out []string
+	for _, f := range strings.Split(s, ",") {
+		if f = strings.TrimSpace(f); f != "" {
+			out = append(out, f)
 		}
 	}
+	return out
+}
+
+// scoreHeader names the score columns: one per class, or for a two-class
+// model with one signed output, the class a positive score means.
+func scoreHeader(m *classify.Model) []string {
+	classes := m.Classes()
+	if m.Outputs() == 1 {
+		if len(classes) == 2 {
+			return []string{"score:" + classes[1]}
+		}
+		return []string{"score"}
+	}
+	var h []string
+	for j := range m.Outputs() {
+		name := fmt.Sprintf("output%d", j)
+		if classes != nil {
+			name = classes[j]
+		}
+		h = append(h, "score:"+name)
+	}
+	return h
+}
+
+// formatScore writes a score exactly: the shortest decimal that reads
+// back to the same value in the model's element type.
+func formatScore(m *classify.Model, v float64) string {
+	if m.Info().DType == "float32" {
+		return strconv.FormatFloat(v, 'g', -1, 32)
+	}
+	return strconv.FormatFloat(v, 'g', -1, 64)
+}
+
+func classifyRows(e *env, m *classify.Model, in string, carry []string, sep rune, cw *csv.Writer, blank bool) error {
+	head := append(append(append([]string(nil), carry...), "class"), scoreHeader(m)...)
 	if err := cw.Write(head); err != nil {
 		return err
 	}
 	rec := make([]string, len(head))
-	return forEachRow(e, m, in, "", blank, func(line int, out []T, _ string) error {
-		if out == nil {
-			clear(rec)
+	k := len(carry)
+	return forEachRow(e, m, in, "", carry, sep, blank, func(row csvRow) error {
+		clear(rec)
+		copy(rec, row.carried)
+		if !row.answered {
 			return cw.Write(rec)
 		}
-		rec[0] = m.Classes[data.ClassOf(out)]
-		for j, v := range out {
-			rec[j+1] = strconv.FormatFloat(float64(v), 'g', -1, bits[T]())
+		rec[k] = row.answer.Label
+		if rec[k] == "" {
+			rec[k] = strconv.Itoa(row.answer.Class)
+		}
+		for j, v := range row.answer.Scores {
+			rec[k+1+j] = formatScore(m, v)
 		}
 		return cw.Write(rec)
 	})
-}
-
-// bits is the size of T, for formatting its values exactly.
-func bits[T net.Float]() int {
-	var z T
-	if _, ok := any(z).(float32); ok {
-		return 32
-	}
-	return 64
 }

@@ -45,10 +45,10 @@ func TestClassifyStdin(t *testing.T) {
 		if len(rows) != len(inRows) {
 			t.Errorf("%d output rows for %d input rows", len(rows), len(inRows))
 		}
-		// Two classes: one output and one score (classify's documented
-		// layout).
-		if !slices.Equal(head, []string{"class", "score"}) {
-			t.Errorf("header %v, want [class score]", head)
+		// Two classes: one output and one score, headed by the class a
+		// positive score means (classify's documented layout).
+		if !slices.Equal(head, []string{"class", "score:on"}) {
+			t.Errorf("header %v, want [class score:on]", head)
 		}
 	}
 

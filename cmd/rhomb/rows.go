@@ -10,9 +10,8 @@ import (
 
 	"github.com/rhomb/rhomb/data"
 	"github.com/rhomb/rhomb/data/prep"
-	"github.com/rhomb/rhomb/net"
+	"github.com/rhomb/rhomb/net/classify"
 	"github.com/rhomb/rhomb/net/modelfile"
-	"github.com/rhomb/rhomb/optim"
 )
 
 // withModel loads the model at path in the element type it was saved in
@@ -48,45 +47,83 @@ func openInput(e *env, path string) (io.Reader, func(), error) {
 	return f, func() { f.Close() }, nil
 }
 
-// rowStream reads a CSV file row by row and encodes each row with a
-// model's pipeline, in batches, never holding the whole file.
-type rowStream[T net.Float] struct {
-	source   string
-	r        *csv.Reader
-	pipe     *prep.Pipeline
-	cols     []int // column of each pipeline input
-	labelCol int   // -1 when not read
-	// skipMissing passes rows with a missing cell through as invalid
-	// instead of failing (the model cannot impute them).
-	skipMissing bool
-	fields      []string
-	feat        []float64
-	batch       int
-	x           []T
-	labels      []string
-	lines       []int
-	valid       []bool
+// loadServing loads the model file at path with the serving reader
+// (net/classify), the one the HTTP server and the edge program use, so
+// that every tool gives the same bits for the same file and rows.
+func loadServing(path string) (*classify.Model, error) {
+	m, err := classify.Load(path)
+	if err != nil {
+		return nil, modelError{err}
+	}
+	return m, nil
 }
 
-func newRowStream[T net.Float](in io.Reader, source string, pipe *prep.Pipeline, label string, batch int) (*rowStream[T], error) {
+// csvRows reads a CSV file row by row and classifies each row with a
+// model's pipeline and network, never holding the whole file.
+type csvRows struct {
+	source string
+	r      *csv.Reader
+	m      *classify.Model
+	w      *classify.Work
+	header []string
+	cols   []int // column of each pipeline input
+	// labelCol is the label's column, or -1 when not read; carry the
+	// columns copied to the output.
+	labelCol int
+	carry    []int
+	// skipMissing passes rows with a missing cell through as not
+	// answered instead of failing (the model cannot impute them).
+	skipMissing bool
+	fields      []string
+	carried     []string
+}
+
+// csvRow is one row read by csvRows.next. Answer's scores belong to the
+// reader and are overwritten by the next row.
+type csvRow struct {
+	line     int
+	answered bool // false: left out for a missing cell
+	answer   classify.Answer
+	label    string
+	carried  []string
+}
+
+// openRows reads the header of a CSV file and matches it to the model's
+// inputs, the label column (when label is not "") and the columns to
+// carry to the output. A header that names a column twice, or lacks one
+// the model needs, is refused.
+func openRows(in io.Reader, source string, m *classify.Model, label string, carry []string, sep rune) (*csvRows, error) {
+	if m.Pipeline() == nil {
+		return nil, modelError{errors.New("the model has no preprocessing for CSV rows (it was trained on IDX data): use -images and -labels")}
+	}
 	r := csv.NewReader(in)
 	r.ReuseRecord = true
-	r.FieldsPerRecord = -1
+	r.FieldsPerRecord = 0 // every row as wide as the header
+	if sep != 0 {
+		r.Comma = sep
+	}
 	head, err := r.Read()
 	if errors.Is(err, io.EOF) {
 		return nil, dataError{&data.ParseError{File: source, Err: data.ErrEmpty}}
 	}
 	if err != nil {
-		return nil, dataError{fmt.Errorf("%s: %w", source, err)}
+		return nil, dataError{csvError(source, err)}
 	}
 	index := map[string]int{}
+	names := make([]string, len(head))
 	for i, h := range head {
-		index[strings.TrimSpace(strings.TrimPrefix(h, "\ufeff"))] = i
+		name := strings.TrimSpace(strings.TrimPrefix(h, "\ufeff"))
+		names[i] = name
+		if j, dup := index[name]; dup {
+			return nil, dataError{&data.ParseError{File: source, Line: 1, Column: i + 1, Field: name,
+				Err: fmt.Errorf("%w: %q is field %d and field %d; rename one of them", data.ErrDuplicateHeader, name, j+1, i+1)}}
+		}
+		index[name] = i
 	}
-	s := &rowStream[T]{source: source, r: r, pipe: pipe, labelCol: -1, batch: batch,
-		fields: make([]string, len(pipe.Inputs())), feat: make([]float64, pipe.Width())}
+	s := &csvRows{source: source, r: r, m: m, w: m.NewWork(), header: make([]string, len(head)), labelCol: -1,
+		fields: make([]string, len(m.Inputs()))}
 	var missing []string
-	for _, name := range pipe.Inputs() {
+	for _, name := range m.Inputs() {
 		i, ok := index[name]
 		if !ok {
 			missing = append(missing, name)
@@ -103,102 +140,106 @@ func newRowStream[T net.Float](in io.Reader, source string, pipe *prep.Pipeline,
 		}
 		s.labelCol = i
 	}
+	for _, name := range carry {
+		i, ok := index[name]
+		if !ok {
+			return nil, dataError{&data.ParseError{File: source, Line: 1, Field: name, Err: fmt.Errorf("%w: -carry names column %q, which the file does not have", data.ErrNoColumn, name)}}
+		}
+		s.carry = append(s.carry, i)
+	}
+	s.carried = make([]string, len(s.carry))
+	copy(s.header, names)
 	return s, nil
 }
 
-// next reads up to batch rows and returns their features (rows×Width) and,
-// if asked for, labels; rows == 0 at the end. valid[r] is false for a row
-// skipped for a missing cell (its features are zero).
-func (s *rowStream[T]) next() (x []T, labels []string, lines []int, valid []bool, rows int, err error) {
-	s.x, s.labels, s.lines, s.valid = s.x[:0], s.labels[:0], s.lines[:0], s.valid[:0]
-	for rows < s.batch {
-		rec, err := s.r.Read()
-		if errors.Is(err, io.EOF) {
-			break
+// csvError turns encoding/csv's errors into the CLI's, saying where and
+// what to do.
+func csvError(source string, err error) error {
+	var pe *csv.ParseError
+	if errors.As(err, &pe) {
+		if errors.Is(err, csv.ErrFieldCount) {
+			return &data.ParseError{File: source, Line: pe.Line, Err: fmt.Errorf("%w: the row's field count differs from the header's; look for a decimal comma or an unquoted separator inside a value (quote the value, or choose another separator with -sep)", data.ErrRagged)}
 		}
-		line, _ := s.r.FieldPos(0)
-		if err != nil {
-			return nil, nil, nil, nil, 0, dataError{fmt.Errorf("%s: %w", s.source, err)}
-		}
-		for i, c := range s.cols {
-			if c >= len(rec) {
-				return nil, nil, nil, nil, 0, dataError{&data.ParseError{File: s.source, Line: line, Err: fmt.Errorf("%w: %d fields, the model's column %q is field %d", data.ErrRagged, len(rec), s.pipe.Inputs()[i], c+1)}}
-			}
-			s.fields[i] = rec[c]
-		}
-		ok := true
-		if err := s.pipe.ApplyStrings(s.fields, s.feat); err != nil && s.skipMissing && errors.Is(err, prep.ErrMissing) {
-			ok = false
-			clear(s.feat)
-		} else if err != nil {
-			pe := &data.ParseError{File: s.source, Line: line, Err: err}
-			var fe *prep.FieldError
-			if errors.As(err, &fe) {
-				pe.Field = fe.Field
-				for i, name := range s.pipe.Inputs() {
-					if name == fe.Field {
-						pe.Line, pe.Column = s.r.FieldPos(s.cols[i])
-					}
-				}
-			}
-			return nil, nil, nil, nil, 0, dataError{withHint(pe)}
-		}
-		for _, v := range s.feat {
-			s.x = append(s.x, T(v))
-		}
-		if s.labelCol >= 0 {
-			if s.labelCol >= len(rec) {
-				return nil, nil, nil, nil, 0, dataError{&data.ParseError{File: s.source, Line: line, Err: fmt.Errorf("%w: no label field", data.ErrRagged)}}
-			}
-			s.labels = append(s.labels, strings.TrimSpace(rec[s.labelCol]))
-		}
-		s.lines = append(s.lines, line)
-		s.valid = append(s.valid, ok)
-		rows++
+		return &data.ParseError{File: source, Line: pe.Line, Column: pe.Column, Err: pe.Err}
 	}
-	return s.x, s.labels, s.lines, s.valid, rows, nil
+	return fmt.Errorf("%s: %w", source, err)
 }
 
-// forEachRow streams path through the model: f gets each row's outputs
-// and, when label is set, its label. With skipMissing, a row with a
-// missing cell gets out == nil instead of failing the run.
-func forEachRow[T net.Float](e *env, m *modelfile.Model[T], path, label string, skipMissing bool, f func(line int, out []T, label string) error) error {
-	if m.Pipeline == nil {
-		return modelError{errors.New("the model has no preprocessing for CSV rows (it was trained on IDX data): use -images and -labels")}
+// next reads and classifies one row; it returns io.EOF at the end.
+func (s *csvRows) next() (csvRow, error) {
+	rec, err := s.r.Read()
+	if errors.Is(err, io.EOF) {
+		return csvRow{}, io.EOF
 	}
+	if errors.Is(err, csv.ErrFieldCount) {
+		line, _ := s.r.FieldPos(0)
+		if len(rec) > len(s.header) {
+			return csvRow{}, dataError{&data.ParseError{File: s.source, Line: line, Column: len(s.header) + 1, Err: fmt.Errorf("%w: the row has %d fields, the header %d; look for a decimal comma or an unquoted separator inside a value (quote the value, or choose another separator with -sep)", data.ErrRagged, len(rec), len(s.header))}}
+		}
+		name := s.header[len(rec)]
+		return csvRow{}, dataError{&data.ParseError{File: s.source, Line: line, Err: fmt.Errorf("%w: the row has %d fields, the header %d: no value for %q and the columns after it; add the missing fields (empty if the values are missing)", data.ErrRagged, len(rec), len(s.header), name)}}
+	}
+	if err != nil {
+		return csvRow{}, dataError{csvError(s.source, err)}
+	}
+	line, _ := s.r.FieldPos(0)
+	for i, c := range s.cols {
+		s.fields[i] = rec[c]
+	}
+	row := csvRow{line: line, answered: true}
+	for i, c := range s.carry {
+		s.carried[i] = rec[c]
+	}
+	row.carried = s.carried
+	if s.labelCol >= 0 {
+		row.label = strings.TrimSpace(rec[s.labelCol])
+	}
+	a, err := s.m.ClassifyFields(s.w, s.fields)
+	switch {
+	case err == nil:
+		row.answer = a
+	case s.skipMissing && errors.Is(err, prep.ErrMissing):
+		row.answered = false
+	default:
+		pe := &data.ParseError{File: s.source, Line: line, Err: err}
+		var fe *prep.FieldError
+		if errors.As(err, &fe) {
+			pe.Field = fe.Field
+			for i, name := range s.m.Inputs() {
+				if name == fe.Field {
+					pe.Line, pe.Column = s.r.FieldPos(s.cols[i])
+				}
+			}
+		}
+		return csvRow{}, dataError{withHint(pe)}
+	}
+	return row, nil
+}
+
+// forEachRow streams path through the model: f gets each row. With
+// skipMissing, a row with a missing cell comes with answered false
+// instead of failing the run.
+func forEachRow(e *env, m *classify.Model, path, label string, carry []string, sep rune, skipMissing bool, f func(row csvRow) error) error {
 	in, done, err := openInput(e, path)
 	if err != nil {
 		return err
 	}
 	defer done()
-	s, err := newRowStream[T](in, path, m.Pipeline, label, 256)
+	s, err := openRows(in, path, m, label, carry, sep)
 	if err != nil {
 		return err
 	}
 	s.skipMissing = skipMissing
-	var model optim.Model[T] = m.Network
-	width := m.Network.Out()
 	for {
-		x, labels, lines, valid, rows, err := s.next()
+		row, err := s.next()
+		if errors.Is(err, io.EOF) {
+			return nil
+		}
 		if err != nil {
 			return err
 		}
-		if rows == 0 {
-			return nil
-		}
-		out := model.Forward(x, rows)
-		for r := range rows {
-			l := ""
-			if labels != nil {
-				l = labels[r]
-			}
-			o := out[r*width : (r+1)*width]
-			if !valid[r] {
-				o = nil
-			}
-			if err := f(lines[r], o, l); err != nil {
-				return err
-			}
+		if err := f(row); err != nil {
+			return err
 		}
 	}
 }

@@ -63,6 +63,7 @@
 package kern
 
 import (
+	"github.com/rhomb/rhomb/internal/arith"
 	"runtime"
 	"sync"
 	"sync/atomic"
@@ -78,7 +79,7 @@ const (
 	// the rounding rule above, so it is the same for every kernel; 256
 	// steps keep a 256×nr panel of op(B) in a 32 KiB first-level cache for
 	// the AVX2 kernels (256·8·8 bytes in float64, 256·16·4 in float32).
-	kcBlock = 256
+	kcBlock = arith.KBlock
 	// mcMax and ncMax bound a tile's rows and columns, so that its packed
 	// panels fit a second-level cache of 1 MiB or more.
 	mcMax = 192

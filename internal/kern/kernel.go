@@ -1,6 +1,7 @@
 package kern
 
 import (
+	"github.com/rhomb/rhomb/internal/arith"
 	"math"
 	"unsafe"
 )
@@ -92,11 +93,11 @@ func genericBody32(mr, nr, kc int, a, b, c *float32, ldc int, alpha, beta float3
 		for i, x := range al {
 			row := acc[i*nr : i*nr+nr]
 			for j, y := range bl {
-				row[j] = fma32(x, y, row[j])
+				row[j] = arith.FMA32(x, y, row[j])
 			}
 		}
 	}
-	epilogue(mr, nr, acc[:mr*nr], c, ldc, alpha, beta, flags, fma32)
+	epilogue(mr, nr, acc[:mr*nr], c, ldc, alpha, beta, flags, arith.FMA32)
 }
 
 func epilogue[T Float](mr, nr int, acc []T, c *T, ldc int, alpha, beta T, flags uintptr, fma func(x, y, z T) T) {
@@ -114,33 +115,4 @@ func epilogue[T Float](mr, nr int, acc []T, c *T, ldc int, alpha, beta T, flags 
 			row[j] = t
 		}
 	}
-}
-
-// fma32 is fused multiply-add in float32, rounded once. The product of two
-// float32 values is exact in float64 (24 + 24 < 53 significant bits), and
-// so is the error e of the float64 sum s = p + z (Knuth's TwoSum). Rounding
-// s to odd (forcing its last bit to 1 when s is inexact) and then to
-// float32 rounds the exact p + z correctly, because float64 carries more
-// than 24 + 2 bits (Boldo and Melquiond, "Emulation of FMA and correctly
-// rounded sums: proved algorithms using rounding to odd", IEEE Trans.
-// Computers 57(4), 2008; from memory).
-func fma32(x, y, z float32) float32 {
-	p := float64(float64(x) * float64(y)) // exact; the conversion forbids fusing it into the sum
-	zz := float64(z)
-	s := p + zz
-	// TwoSum: e = (p + zz) − s exactly.
-	bb := s - p
-	e := (p - (s - bb)) + (zz - bb)
-	if e != 0 && !math.IsInf(s, 0) {
-		bits := math.Float64bits(s)
-		if bits&1 == 0 {
-			if (e > 0) == (s > 0) {
-				bits++
-			} else {
-				bits--
-			}
-			s = math.Float64frombits(bits)
-		}
-	}
-	return float32(s)
 }

@@ -2,6 +2,7 @@ package kern
 
 import (
 	"fmt"
+	"github.com/rhomb/rhomb/internal/arith"
 	"math"
 	"math/big"
 	"math/rand/v2"
@@ -85,9 +86,13 @@ func fmaT[T Float](x, y, z T) T {
 	return T(f)
 }
 
+// fma32 is the float32 fused multiply-add of the rounding rule, kept in
+// internal/arith.
+var fma32 = arith.FMA32
+
 // fastFMA is fused multiply-add rounded once in T: math.FMA for float64
 // (the standard library's, correctly rounded by its documentation) and
-// fma32 for float32 (checked against math/big by TestFma32).
+// arith.FMA32 for float32 (checked against math/big in internal/arith).
 func fastFMA[T Float](x, y, z T) T {
 	switch v := any(x).(type) {
 	case float32:
@@ -139,49 +144,6 @@ func ruleProduct[T Float](pr *problem[T], c0 []T, flags uintptr) []T {
 		}
 	}
 	return c
-}
-
-// TestFma32 checks the pure-Go float32 fused multiply-add against the
-// exact computation with math/big, on random operands and on cases where
-// rounding the float64 sum to float32 would round twice wrongly: z is a
-// float32 and x·y a tiny amount off a float32 half-way point.
-func TestFma32(t *testing.T) {
-	rng := rand.New(rand.NewPCG(8, 8))
-	check := func(x, y, z float32) {
-		t.Helper()
-		if got, want := fma32(x, y, z), fmaT(x, y, z); math.Float32bits(got) != math.Float32bits(want) {
-			t.Errorf("fma32(%v, %v, %v) = %v, exact rounding %v", x, y, z, got, want)
-		}
-	}
-	for range 20000 {
-		x := float32(rng.NormFloat64())
-		y := float32(rng.NormFloat64())
-		z := float32(rng.NormFloat64() * math.Exp2(float64(rng.IntN(60)-30)))
-		check(x, y, z)
-	}
-	// Half-way cases: z = 1, x·y = 2^-24 (exactly half an ulp of 1) plus
-	// or minus 2^-60, which float64 cannot hold next to 1 (its ulp there
-	// is 2^-52): the float64 sum rounds to the exact tie 1 + 2^-24, and a
-	// naive float32(...) would then round to even, 1, even where the
-	// exact sum is above the tie.
-	check(0x1p-24+0x1p-47, 1+0x1p-13, 1)
-	check(0x1p-24, 1+0x1p-23, 1)
-	check(-(0x1p-24), 1+0x1p-23, 1)
-	check(0x1p-24, 1-0x1p-24, 1)
-	check(3, 0x1p-25*(1+0x1p-23), 1)
-	check(0, 5, -0)
-	check(-0, 5, -0)
-	// A double-rounding case from the construction above, shown to fail
-	// for the naive formula, so the check can tell them apart.
-	// z = 1 + 2^-23 has an odd last bit; x·y = 2^-24 − 2^-70 is just under
-	// half its ulp, so the exact sum rounds down to z, while the float64
-	// sum is the tie z + 2^-24, which float32(...) rounds to even, up.
-	x, y, z := float32(0x1p-24+0x1p-47), float32(1-0x1p-23), float32(1+0x1p-23)
-	check(x, y, z)
-	naive := float32(float64(x)*float64(y) + float64(z))
-	if math.Float32bits(naive) == math.Float32bits(fmaT(x, y, z)) {
-		t.Errorf("naive rounding agrees on the tie case; the case tests nothing")
-	}
 }
 
 // TestKernelsBitExact checks every kernel against the rounding rule of the

@@ -5,7 +5,6 @@ import (
 	"path/filepath"
 	"testing"
 
-	"github.com/rhomb/rhomb/net"
 	"github.com/rhomb/rhomb/net/classify"
 	"github.com/rhomb/rhomb/net/modelfile"
 )
@@ -36,28 +35,26 @@ func convert32(t *testing.T, m *modelfile.Model[float64]) (*modelfile.Model[floa
 	return m32, c
 }
 
-// TestFloat32SameBitsAsWidened: classify computes a float32 model in
-// float64 on its weights widened exactly; the reference is the training
-// library's float64 forward pass on a network holding those widened
-// weights, bit for bit.
-func TestFloat32SameBitsAsWidened(t *testing.T) {
+// TestFloat32SameBitsAsTraining: classify computes a float32 model in
+// float32, as training does; the reference is the training library's
+// float32 forward pass on the rows rounded to float32 (as training makes
+// its float32 data set), widened exactly to float64, bit for bit.
+func TestFloat32SameBitsAsTraining(t *testing.T) {
 	split := demoSplit(t)
-	m := build(t, kindCase{"relu", "global", true, false}, split.Train)
-	m32, c := convert32(t, m)
-	specs, err := m32.Network.Spec()
-	if err != nil {
-		t.Fatal(err)
-	}
-	wide, err := net.FromSpec[float64](m32.Network.In(), specs)
-	if err != nil {
-		t.Fatal(err)
-	}
-	for i, p := range wide.Params() {
-		for k, v := range m32.Network.Params()[i].Value {
-			p.Value[k] = float64(v)
+	for _, kc := range []kindCase{{"relu", "global", true, false}, {"relu", "none", true, false}, {"smooth", "per-layer", true, false}, {"poly", "per-layer", true, false}, {"poly-ls", "per-unit", true, true}} {
+		m := build(t, kc, split.Train)
+		m32, c := convert32(t, m)
+		x32 := make([]float32, len(split.Train.X))
+		for i, v := range split.Train.X {
+			x32[i] = float32(v)
 		}
+		out := m32.Network.Forward(x32, split.Train.Rows)
+		want := make([]float64, len(out))
+		for i, v := range out {
+			want[i] = float64(v)
+		}
+		sameBits(t, c, split.Train.X, split.Train.Rows, want)
 	}
-	sameBits(t, c, split.Train.X, split.Train.Rows, wide.Forward(split.Train.X, split.Train.Rows))
 }
 
 // TestFloat32Difference reports the largest difference between a float64

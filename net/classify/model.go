@@ -114,7 +114,10 @@ type Answer struct {
 type Work struct {
 	m      *Model
 	feat   []float64 // one encoded row
-	a, b   []float64 // layer outputs
+	a, b   []float64 // layer outputs, float64 models
+	x32    []float32 // the row, float32 models
+	a32    []float32 // layer outputs, float32 models
+	b32    []float32
 	scores []float64 // batch outputs
 	cols   []prep.Column
 	num    []float64 // backing for cols
@@ -124,12 +127,16 @@ type Work struct {
 
 // NewWork returns buffers sized for m.
 func (m *Model) NewWork() *Work {
-	return &Work{
-		m:    m,
-		feat: make([]float64, m.features),
-		a:    make([]float64, m.maxWidth),
-		b:    make([]float64, m.maxWidth),
+	w := &Work{m: m, feat: make([]float64, m.features)}
+	if m.dtype == "float32" {
+		w.x32 = make([]float32, m.features)
+		w.a32 = make([]float32, m.maxWidth)
+		w.b32 = make([]float32, m.maxWidth)
+	} else {
+		w.a = make([]float64, m.maxWidth)
+		w.b = make([]float64, m.maxWidth)
 	}
+	return w
 }
 
 func (m *Model) work(w *Work) *Work {
@@ -193,8 +200,7 @@ func infText(v float64) string {
 // finish runs the network on w.feat-like row x and writes its outputs
 // into dst.
 func (m *Model) run(w *Work, x, dst []float64) (Answer, error) {
-	out := m.forward(x, w.a, w.b)
-	copy(dst, out)
+	m.scores(w, x, dst)
 	return m.answer(dst)
 }
 

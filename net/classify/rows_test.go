@@ -189,8 +189,8 @@ func TestConcurrent(t *testing.T) {
 }
 
 // TestStdlibOnly asserts the import graph the package doc promises: the
-// standard library, data/prep and internal/container, nothing else (no
-// gonum, no training code).
+// standard library, data/prep, the model file schema and the shared
+// arithmetic, nothing else (no gonum, no training code).
 func TestStdlibOnly(t *testing.T) {
 	gobin, err := exec.LookPath("go")
 	if err != nil {
@@ -201,14 +201,17 @@ func TestStdlibOnly(t *testing.T) {
 		if err != nil {
 			t.Fatalf("go list: %v\n%s", err, out)
 		}
-		// internal/container is the model file's container layer, shared
-		// with the training library's reader; it is standard-library only,
-		// which this list checks too, since -deps lists its imports.
-		allowed := map[string]bool{self: true, "github.com/rhomb/rhomb/data/prep": true, "github.com/rhomb/rhomb/internal/container": true, "github.com/rhomb/rhomb/net/classify": true}
+		// net/modelfile/schema (with internal/container) is the model
+		// file format and internal/arith the forward pass's arithmetic,
+		// both shared with the training library; they are standard-library
+		// only, which this list checks too, since -deps lists their
+		// imports.
+		allowed := map[string]bool{self: true, "github.com/rhomb/rhomb/data/prep": true, "github.com/rhomb/rhomb/internal/container": true,
+			"github.com/rhomb/rhomb/net/classify": true, "github.com/rhomb/rhomb/net/modelfile/schema": true, "github.com/rhomb/rhomb/internal/arith": true}
 		deps := strings.Fields(string(out))
 		for _, p := range deps {
 			if !allowed[p] {
-				t.Errorf("%s imports %s; it may import only the standard library, data/prep, internal/container and classify", self, p)
+				t.Errorf("%s imports %s; it may import only the standard library, data/prep, the model file schema, internal/arith and classify", self, p)
 			}
 		}
 		if len(deps) < 2 {

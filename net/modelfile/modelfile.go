@@ -11,9 +11,9 @@ import (
 
 	"github.com/rhomb/rhomb/data/prep"
 	"github.com/rhomb/rhomb/internal/atomicfile"
-	"github.com/rhomb/rhomb/internal/container"
 	"github.com/rhomb/rhomb/internal/version"
 	"github.com/rhomb/rhomb/net"
+	"github.com/rhomb/rhomb/net/modelfile/schema"
 	"github.com/rhomb/rhomb/normalize"
 	"github.com/rhomb/rhomb/optim"
 )
@@ -65,9 +65,9 @@ func (m *Model[T]) Trainable() optim.Model[T] {
 func dtypeOf[T net.Float]() string {
 	var z T
 	if _, ok := any(z).(float32); ok {
-		return "float32"
+		return schema.Float32
 	}
-	return "float64"
+	return schema.Float64
 }
 
 // Write encodes m. A normalized model's W are brought up to date (ρ·V)
@@ -95,16 +95,13 @@ func encode[T net.Float](m *Model[T]) ([]byte, error) {
 	if err != nil {
 		return nil, fmt.Errorf("modelfile: Write: %w", err)
 	}
-	h := header{
-		Format: container.Format, Library: "rhomb " + version.Version,
+	h := schema.Header{
+		Format: schema.Format, Library: "rhomb " + version.Version,
 		Created: time.Now().UTC().Format(time.RFC3339), DType: dtypeOf[T](),
 		Inputs: m.Network.In(), Classes: m.Classes, Label: m.Label, Loss: m.Loss,
 		Training: m.Training, Metrics: m.Metrics,
 	}
-	for _, s := range specs {
-		raw, _ := json.Marshal(s)
-		h.Graph = append(h.Graph, raw)
-	}
+	h.Graph = specs
 	if m.Pipeline != nil {
 		if h.Pipeline, err = json.Marshal(m.Pipeline); err != nil {
 			return nil, fmt.Errorf("modelfile: Write: pipeline: %w", err)
@@ -112,29 +109,29 @@ func encode[T net.Float](m *Model[T]) ([]byte, error) {
 	}
 	var data bytes.Buffer
 	add := func(name, role, dtype string, shape []int, write func(*bytes.Buffer)) {
-		h.Tensors = append(h.Tensors, container.Tensor{Name: name, Role: role, DType: dtype, Shape: shape, Offset: int64(data.Len())})
+		h.Tensors = append(h.Tensors, schema.Tensor{Name: name, Role: role, DType: dtype, Shape: shape, Offset: int64(data.Len())})
 		write(&data)
 		for data.Len()%8 != 0 {
 			data.WriteByte(0)
 		}
 	}
 	for _, p := range m.Network.Params() {
-		add(p.Name, roleWeight, h.DType, []int{p.Rows, p.Cols}, func(b *bytes.Buffer) { putFloats(b, p.Value) })
+		add(p.Name, schema.RoleWeight, h.DType, []int{p.Rows, p.Cols}, func(b *bytes.Buffer) { putFloats(b, p.Value) })
 	}
 	if n := m.Normalized; n != nil {
 		o := n.Options()
-		h.Normalization = &normHeader{Scale: "per-layer", Hold: "multiplier", PerUnit: o.PerUnit, SkipReadout: o.SkipReadout, NoRetraction: o.NoRetraction, Layers: o.Layers}
+		h.Normalization = &schema.Normalization{Scale: schema.ScalePerLayer, Hold: schema.HoldMultiplier, PerUnit: o.PerUnit, SkipReadout: o.SkipReadout, NoRetraction: o.NoRetraction, Layers: o.Layers}
 		if o.Scale == normalize.Global {
-			h.Normalization.Scale = "global"
+			h.Normalization.Scale = schema.ScaleGlobal
 		}
 		if o.Hold == normalize.Projection {
-			h.Normalization.Hold = "projection"
+			h.Normalization.Hold = schema.HoldProjection
 		}
 		for _, p := range n.Params() {
 			if isWeight(m.Network, p) {
 				continue // a plain layer's W, written above
 			}
-			add(p.Name, roleParam, h.DType, []int{p.Rows, p.Cols}, func(b *bytes.Buffer) { putFloats(b, p.Value) })
+			add(p.Name, schema.RoleParam, h.DType, []int{p.Rows, p.Cols}, func(b *bytes.Buffer) { putFloats(b, p.Value) })
 		}
 	}
 	if c := m.Checkpoint; c != nil {
@@ -142,13 +139,13 @@ func encode[T net.Float](m *Model[T]) ([]byte, error) {
 		if c.Velocity != nil && len(c.Velocity) != len(params) {
 			return nil, fmt.Errorf("modelfile: Write: checkpoint has %d momentum buffers for %d parameters", len(c.Velocity), len(params))
 		}
-		h.Checkpoint = &checkpointHeader{Step: c.Step, Epoch: c.Epoch, InEpoch: c.InEpoch, EpochLoss: c.EpochLoss, EpochRows: c.EpochRows, BatchRNG: c.BatchRNG, NoiseRNG: c.NoiseRNG}
+		h.Checkpoint = &schema.Checkpoint{Step: c.Step, Epoch: c.Epoch, InEpoch: c.InEpoch, EpochLoss: c.EpochLoss, EpochRows: c.EpochRows, BatchRNG: c.BatchRNG, NoiseRNG: c.NoiseRNG}
 		if !math.IsNaN(c.LastLoss) {
 			l := c.LastLoss
 			h.Checkpoint.LastLoss = &l
 		}
 		for i, v := range c.Velocity {
-			add("velocity/"+params[i].Name, roleVelocity, "float64", []int{len(v)}, func(b *bytes.Buffer) { putFloats(b, v) })
+			add("velocity/"+params[i].Name, schema.RoleVelocity, schema.Float64, []int{len(v)}, func(b *bytes.Buffer) { putFloats(b, v) })
 		}
 		if m.Kept != nil && len(m.Kept) != len(params) {
 			return nil, fmt.Errorf("modelfile: Write: checkpoint keeps %d parameters for %d", len(m.Kept), len(params))
@@ -157,13 +154,13 @@ func encode[T net.Float](m *Model[T]) ([]byte, error) {
 			if len(v) != len(params[i].Value) {
 				return nil, fmt.Errorf("modelfile: Write: kept parameter %s has %d values for %d", params[i].Name, len(v), len(params[i].Value))
 			}
-			add("kept/"+params[i].Name, roleKept, "float64", []int{len(v)}, func(b *bytes.Buffer) { putFloats(b, v) })
+			add("kept/"+params[i].Name, schema.RoleKept, schema.Float64, []int{len(v)}, func(b *bytes.Buffer) { putFloats(b, v) })
 		}
 		h.Checkpoint.Session = m.Session
 		if len(c.Order) > math.MaxInt32 {
 			return nil, fmt.Errorf("modelfile: Write: %d rows do not fit the checkpoint's int32 order", len(c.Order))
 		}
-		add("order", roleOrder, "int32", []int{len(c.Order)}, func(b *bytes.Buffer) {
+		add("order", schema.RoleOrder, schema.Int32, []int{len(c.Order)}, func(b *bytes.Buffer) {
 			for _, r := range c.Order {
 				binary.Write(b, binary.LittleEndian, int32(r))
 			}
@@ -173,7 +170,7 @@ func encode[T net.Float](m *Model[T]) ([]byte, error) {
 	if err != nil {
 		return nil, fmt.Errorf("modelfile: Write: header: %w", err)
 	}
-	return container.Assemble(hj, data.Bytes()), nil
+	return schema.Assemble(hj, data.Bytes()), nil
 }
 
 func isWeight[T net.Float](n *net.Network[T], p *net.Param[T]) bool {

@@ -1,0 +1,146 @@
+// Package arith is the arithmetic that a model's forward pass is made of,
+// written once: the rounding rule of a dense layer's sums, the smoothed
+// and polynomial rectifiers, and the fit of the polynomial. Training (the
+// layers of package net and the matrix kernels of internal/kern) and
+// serving (package net/classify, the server and the edge program) both
+// call it, so a model file gives the same bits in training and in serving
+// by construction, not by keeping two copies alike.
+//
+// It imports only the standard library, so that the serving side stays
+// small.
+//
+// # The rule of a dense layer's sums
+//
+// Output j of a dense layer is Σ_l x_l·w_l over the layer's inputs,
+// computed in the element type T by one fixed rule:
+//
+//	for each block b = 0, 1, … of KBlock consecutive terms, in order:
+//	    acc = 0; for l in the block, in order: acc = fma(x_l, w_l, acc)
+//	    c = acc for the first block, c = c + acc for every later block
+//
+// where fma rounds once in T (math.FMA for float64, FMA32 for float32) and
+// the addition rounds once in T. Dot is that rule; the assembly kernels of
+// internal/kern are checked against it bit for bit.
+package arith
+
+import (
+	"fmt"
+	"math"
+)
+
+// Float is the set of element types rhomb computes in.
+type Float interface{ float32 | float64 }
+
+// KBlock is the length of the blocks of the rule above. It is part of the
+// rounding rule, so every kernel and every reader uses this one value.
+const KBlock = 256
+
+// FMA32 is fused multiply-add in float32, rounded once. The product of two
+// float32 values is exact in float64 (24 + 24 < 53 significant bits), and
+// so is the error e of the float64 sum s = p + z (Knuth's TwoSum). Rounding
+// s to odd (forcing its last bit to 1 when s is inexact) and then to
+// float32 rounds the exact p + z correctly, because float64 carries more
+// than 24 + 2 bits (Boldo and Melquiond, "Emulation of FMA and correctly
+// rounded sums: proved algorithms using rounding to odd", IEEE Trans.
+// Computers 57(4), 2008; from memory). The tests check it against
+// math/big.
+func FMA32(x, y, z float32) float32 {
+	p := float64(float64(x) * float64(y)) // exact; the conversion forbids fusing it into the sum
+	zz := float64(z)
+	s := p + zz
+	// TwoSum: e = (p + zz) − s exactly.
+	bb := s - p
+	e := (p - (s - bb)) + (zz - bb)
+	if e != 0 && !math.IsInf(s, 0) {
+		bits := math.Float64bits(s)
+		if bits&1 == 0 {
+			if (e > 0) == (s > 0) {
+				bits++
+			} else {
+				bits--
+			}
+			s = math.Float64frombits(bits)
+		}
+	}
+	return float32(s)
+}
+
+// FMA returns x·y + z rounded once in T.
+func FMA[T Float](x, y, z T) T {
+	switch a := any(x).(type) {
+	case float32:
+		return T(FMA32(a, any(y).(float32), any(z).(float32)))
+	default:
+		return T(math.FMA(float64(x), float64(y), float64(z)))
+	}
+}
+
+// Dot returns Σ_l x_l·w_l by the rule in the package documentation.
+// w must be at least as long as x.
+func Dot[T Float](x, w []T) T {
+	w = w[:len(x)]
+	var c T
+	if _, ok := any(c).(float32); ok {
+		return T(dot32(any(x).([]float32), any(w).([]float32)))
+	}
+	return T(dot64(any(x).([]float64), any(w).([]float64)))
+}
+
+func dot64(x, w []float64) float64 {
+	var c float64
+	for b := 0; b < len(x); b += KBlock {
+		e := min(b+KBlock, len(x))
+		var acc float64
+		for l := b; l < e; l++ {
+			acc = math.FMA(x[l], w[l], acc)
+		}
+		if b == 0 {
+			c = acc
+		} else {
+			c += acc
+		}
+	}
+	return c
+}
+
+func dot32(x, w []float32) float32 {
+	var c float32
+	for b := 0; b < len(x); b += KBlock {
+		e := min(b+KBlock, len(x))
+		var acc float32
+		for l := b; l < e; l++ {
+			acc = FMA32(x[l], w[l], acc)
+		}
+		if b == 0 {
+			c = acc
+		} else {
+			c += acc
+		}
+	}
+	return c
+}
+
+// ReLU returns max(x, 0).
+func ReLU[T Float](x T) T { return max(x, 0) }
+
+// SmoothReLU returns log(1 + e^{βu})/β, computed as
+// max(u, 0) + log1p(e^{−β|u|})/β so that exp only sees non-positive
+// arguments: nothing overflows even when βu does, and the ReLU part is
+// exact. Layers compute it in float64 whatever their element type and
+// round the result to it once.
+func SmoothReLU(u, beta float64) float64 {
+	return max(u, 0) + math.Log1p(math.Exp(-beta*math.Abs(u)))/beta
+}
+
+// CheckSharpness reports whether β is a usable sharpness for a smoothed
+// rectifier computing in T: finite, positive, and large enough that the
+// value at 0, log(2)/β, does not overflow T.
+func CheckSharpness[T Float](beta float64) error {
+	if math.IsNaN(beta) || math.IsInf(beta, 0) || beta <= 0 {
+		return fmt.Errorf("smooth ReLU sharpness β = %v: want a finite β > 0 (larger is closer to ReLU; the largest gap is log(2)/β, at 0)", beta)
+	}
+	if math.IsInf(float64(T(math.Ln2/beta)), 0) {
+		return fmt.Errorf("smooth ReLU sharpness β = %v: too small, the value at 0, log(2)/β, overflows; use a β of order 1 or larger", beta)
+	}
+	return nil
+}
