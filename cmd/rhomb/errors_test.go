@@ -190,6 +190,22 @@ func TestServeBadData(t *testing.T) {
 			pieces:   []string{":3: ", data.ErrRagged.Error(), `"site"`},
 		},
 		{
+			// A decimal comma splits a value in two: the row has one
+			// field too many. Before, classify and check read the fields
+			// the model named and gave a confident wrong answer.
+			name:     "decimal comma",
+			commands: []string{"classify", "check"},
+			content:  "x1,x2,site,state\n0.5,1,north,on\n0,25,1,south,off\n",
+			pieces:   []string{":3:5: ", data.ErrRagged.Error(), "decimal comma", "-sep"},
+		},
+		{
+			// Before, the last of two columns of one name was used.
+			name:     "duplicate header",
+			commands: []string{"classify", "check"},
+			content:  "x1,x2,site,x2,state\n0.5,1,north,2,on\n",
+			pieces:   []string{":1:4 ", data.ErrDuplicateHeader.Error(), `"x2" is field 2 and field 4`},
+		},
+		{
 			name:     "unknown class",
 			commands: []string{"check"},
 			content:  "x1,x2,site,state\n0.5,1,north,on\n0.25,1,south,standby\n",

@@ -150,17 +150,17 @@ func (e *FieldError) Unwrap() error { return e.Err }
 func hint(err error) string {
 	switch {
 	case errors.Is(err, ErrMissing):
-		return "supply a value, drop the row, or fit the pipeline with Options.Impute"
+		return "supply a value, drop the row, or use a model trained to fill in missing values"
 	case errors.Is(err, ErrUnknownCategory):
-		return "check the spelling, refit with training rows that hold this category, or fit with Options.UnknownAsZeros to encode it as zeros"
+		return "check the spelling, or retrain with rows that hold this category or with unseen categories encoded as zeros"
 	case errors.Is(err, ErrNotNumber):
 		return "the field is numeric: give a decimal number such as 2.5, or a missing-value marker"
 	case errors.Is(err, ErrInfinite):
 		return "give finite numbers, small enough in size to be centred and scaled in float64"
 	case errors.Is(err, ErrUnknownField):
-		return "give only the fields that Pipeline.Inputs lists, under those names"
+		return "give only the model's input fields, under their names"
 	case errors.Is(err, ErrRagged):
-		return "give one field per input, in the order of Pipeline.Inputs"
+		return "give one field per model input, in the model's input order"
 	}
 	return ""
 }

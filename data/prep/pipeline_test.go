@@ -244,7 +244,7 @@ func TestImputeTrainingRowsOnly(t *testing.T) {
 	if !errors.Is(err, prep.ErrUnknownCategory) || !errors.As(err, &fe) || fe.Row != 4 || fe.Field != "c" || fe.Value != "z" {
 		t.Errorf("unseen category: %v", err)
 	}
-	if err != nil && !strings.Contains(err.Error(), "UnknownAsZeros") {
+	if err != nil && !strings.Contains(err.Error(), "unseen categories encoded as zeros") {
 		t.Errorf("message %q does not say what to do", err)
 	}
 
@@ -447,7 +447,7 @@ func TestFitErrors(t *testing.T) {
 	nan := math.NaN()
 	var fe *prep.FieldError
 	_, err := prep.Fit([]prep.Column{num("x", 1, nan, 3)}, nil, prep.Options{})
-	if !errors.Is(err, prep.ErrMissing) || !errors.As(err, &fe) || fe.Row != 1 || fe.Field != "x" || !strings.Contains(err.Error(), "Options.Impute") {
+	if !errors.Is(err, prep.ErrMissing) || !errors.As(err, &fe) || fe.Row != 1 || fe.Field != "x" || !strings.Contains(err.Error(), "fill in missing values") {
 		t.Errorf("missing training value without imputation: %v", err)
 	}
 	// The missing row is not a training row: fine.

@@ -1,10 +1,11 @@
 // Command edge classifies rows with a model embedded in the binary: no
 // model file to ship, no training code linked (it imports only package
-// classify, which imports only the standard library, data/prep and
-// internal/container).
+// classify, which imports only the standard library, data/prep, the model
+// file schema and the forward pass's arithmetic).
 //
 //	edge < readings.csv > labelled.csv
 //	edge -in readings.csv
+//	edge -model other.model -in readings.csv   (a model file instead of the embedded one)
 //
 // The input is CSV with a header naming the model's input fields, in any
 // order; other columns (such as the label) are ignored. Each output line
@@ -46,7 +47,17 @@ var modelFile []byte
 
 func main() {
 	in := flag.String("in", "-", "CSV `file` to classify; - reads standard input")
+	model := flag.String("model", "", "model `file` to use instead of the embedded one")
 	flag.Parse()
+	b, source := modelFile, "embedded pumps.model"
+	if *model != "" {
+		var err error
+		if b, err = os.ReadFile(*model); err != nil {
+			fmt.Fprintln(os.Stderr, "edge:", err)
+			os.Exit(1)
+		}
+		source = *model
+	}
 	r := io.Reader(os.Stdin)
 	if *in != "-" {
 		f, err := os.Open(*in)
@@ -58,7 +69,7 @@ func main() {
 		r = f
 	}
 	w := bufio.NewWriter(os.Stdout)
-	err := run(r, w)
+	err := run(b, source, r, w)
 	if ferr := w.Flush(); err == nil {
 		err = ferr
 	}
@@ -68,9 +79,10 @@ func main() {
 	}
 }
 
-// run classifies every CSV row of r and writes one line per row to w.
-func run(r io.Reader, w io.Writer) error {
-	m, err := classify.Read(modelFile, "embedded pumps.model")
+// run classifies every CSV row of r with the model file held in model
+// and writes one line per row to w.
+func run(model []byte, source string, r io.Reader, w io.Writer) error {
+	m, err := classify.Read(model, source)
 	if err != nil {
 		return err
 	}

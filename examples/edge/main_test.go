@@ -17,7 +17,7 @@ import (
 // embedded file is the float32 11-16-16-4 model the generator documents.
 func TestRunMatchesClassify(t *testing.T) {
 	var out bytes.Buffer
-	if err := run(bytes.NewReader(demo.CSV), &out); err != nil {
+	if err := run(modelFile, "embedded", bytes.NewReader(demo.CSV), &out); err != nil {
 		t.Fatal(err)
 	}
 	m, err := classify.Read(modelFile, "embedded")
@@ -60,7 +60,7 @@ func TestRunMatchesClassify(t *testing.T) {
 // TestRunRefusesBadHeader: a file without the model's columns is an error
 // naming the column, not a silent guess.
 func TestRunRefusesBadHeader(t *testing.T) {
-	err := run(strings.NewReader("a,b\n1,2\n"), &bytes.Buffer{})
+	err := run(modelFile, "embedded", strings.NewReader("a,b\n1,2\n"), &bytes.Buffer{})
 	if err == nil || !strings.Contains(err.Error(), `"site"`) {
 		t.Fatalf("got %v", err)
 	}

@@ -66,7 +66,7 @@ func Example() {
 	fmt.Println(err)
 	// Output:
 	// healthy 4 scores
-	// prep: field "site": value "moon-base": category not seen in training; check the spelling, refit with training rows that hold this category, or fit with Options.UnknownAsZeros to encode it as zeros
+	// prep: field "site": value "moon-base": category not seen in training; check the spelling, or retrain with rows that hold this category or with unseen categories encoded as zeros
 }
 
 // Classify rows held in a struct of the caller's: Bind matches its fields

@@ -4,6 +4,7 @@ import (
 	"encoding/json"
 	"errors"
 	"fmt"
+	"github.com/rhomb/rhomb/net/modelfile/schema"
 	"io"
 	"math"
 	"os"
@@ -156,7 +157,7 @@ func escape(name string) string {
 }
 
 // exportable lists the node kinds Marshal handles, for error messages.
-var exportable = []string{"constant-one", "dense", "readout", "relu", "smooth-relu", "poly-relu"}
+var exportable = []string{schema.KindConstantOne, schema.KindDense, schema.KindReadout, schema.KindReLU, schema.KindSmoothReLU, schema.KindPolyReLU}
 
 // graph collects the pieces of a GraphProto.
 type graph struct {
