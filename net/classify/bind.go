@@ -180,7 +180,7 @@ func (b *Binding[R]) Classify(w *Work, row *R) (Answer, error) {
 	if err := b.encode(w, row); err != nil {
 		return Answer{}, err
 	}
-	return b.m.run(w, w.feat, w.one())
+	return b.m.run(w, w.feat, w.one(), 0)
 }
 
 // ClassifyBatch classifies rows, writing one Answer per row into dst
@@ -196,7 +196,7 @@ func (b *Binding[R]) ClassifyBatch(w *Work, rows []R, dst []Answer) error {
 		if err := b.encode(w, &rows[r]); err != nil {
 			return &RowError{Row: r, Err: err}
 		}
-		a, err := b.m.run(w, w.feat, w.scores[r*o:(r+1)*o])
+		a, err := b.m.run(w, w.feat, w.scores[r*o:(r+1)*o], r)
 		if err != nil {
 			return &RowError{Row: r, Err: err}
 		}

@@ -1,18 +1,23 @@
 // Package classify loads a rhomb model file and classifies rows with it,
-// for services and edge binaries. It imports only the standard library,
-// data/prep and internal/container (the model file's container layer),
-// both themselves standard-library only — never the training code or
-// gonum, so a program that only predicts stays small; a test checks the
-// import graph.
+// for services and edge binaries: `rhomb classify` and `rhomb check`, the
+// HTTP server (package endpoint) and the edge program all read and compute
+// through it, so one file gives the same bits in every tool. It imports
+// only the standard library, data/prep, the model file's schema
+// (net/modelfile/schema, with internal/container) and the forward pass's
+// arithmetic (internal/arith), all themselves standard-library only —
+// never the training code or gonum, so a program that only predicts stays
+// small; a test checks the import graph.
 //
 // # Loading
 //
-// Load and Read parse the format of docs/model-file.md and validate the
-// file the way that page asks — magic, version, sizes and offsets against
-// the file's length before allocating, tensors tiling the data, SHA-256,
-// the graph against its weight tensors, finite weights, the pipeline —
-// and report the first problem as a *FileError wrapping one of ErrMagic,
-// ErrVersion, ErrTruncated, ErrChecksum, ErrHeader, ErrShape or ErrWeight.
+// Load and Read check the file with schema.Parse, as the training
+// library's reader does, so the two accept exactly the same files — magic,
+// version, sizes and offsets against the file's length before allocating,
+// tensors tiling the data, SHA-256, the graph against its weight tensors,
+// normalized parameters, finite values, the pipeline, the decision maps —
+// and report the first problem as a *FileError (schema.Error) wrapping one
+// of ErrMagic, ErrVersion, ErrTruncated, ErrChecksum, ErrHeader, ErrShape
+// or ErrWeight.
 // A Model never changes after loading and is safe for concurrent use.
 //
 // # Classifying
@@ -23,8 +28,10 @@
 // with one field per input (Bind, then Binding.Classify). Raw cells and
 // struct fields go through the model's own prep.Pipeline — the encoder the
 // training rows went through — so a value is encoded to the same bits as
-// in training. Each call returns an Answer: the class index, its name, and
-// the network's outputs.
+// in training. Each call returns an Answer: the class index, its name, the
+// network's outputs and the normalized margin; and, when the file holds
+// them (see docs/model-file.md, "Decision"), the calibrated probabilities,
+// the prediction set and whether the model abstains.
 //
 // Buffers live in a Work, owned by the caller: one per goroutine (or one
 // per request from a sync.Pool). With a Work, a prediction allocates
@@ -39,26 +46,21 @@
 //
 // # Same bits as training
 //
-// For a float64 model the scores are bit for bit those of the training
-// library's forward pass (net.Network.Forward) on the same features. Each
-// dense layer's sums follow the rounding rule that the training library's
-// matrix product documents (internal/kern): fused multiply-adds over
-// blocks of 256 terms, in order, the blocks' sums added in order. Every
-// other product that is added to something is rounded first, so that the
-// compiler cannot fuse it. A test checks the bits over every kind of model
-// the trainer makes. Since math.FMA rounds the same everywhere, a model
-// with ReLU layers gives the same bits on arm64 as on amd64; smoothed and
-// polynomial layers call math.Exp, math.Log1p and math.Cos, whose
-// implementations differ between architectures in the last bit.
-//
-// Two exceptions. A polynomial ReLU uses the fitted coefficients the file
-// stores; a file written before they were stored has its least-squares
-// fits refitted here by the closed form of a discretely orthogonal basis,
-// where training solves the same problem by Householder QR, and those
-// coefficients agree to a few units in the last place, not bit for bit.
-// And a float32 model is computed in float64 here, with its weights widened exactly,
-// whereas the training library computes it in float32; its scores equal
-// those of the float64 training forward pass on the widened weights.
+// The scores are bit for bit those of the training library's forward pass
+// (net.Network.Forward) on the same features, in the model's own element
+// type: a float32 model is computed in float32, after its float64
+// features are rounded to float32 as training's data set is, and its
+// scores widened exactly to float64. The arithmetic is one copy shared
+// with training (internal/arith): each dense layer's sums follow the
+// rounding rule of the training library's matrix product (fused
+// multiply-adds over blocks of 256 terms, in order, the blocks' sums added
+// in order), and the smoothed and polynomial rectifiers, including the
+// polynomial's fit, are the same functions. Tests check the bits over
+// every kind of model the trainer makes, in both element types. Since
+// FMA rounds the same everywhere, a model with ReLU layers gives the same
+// bits on arm64 as on amd64; smoothed and polynomial layers call math.Exp,
+// math.Log1p and math.Cos, whose implementations differ between
+// architectures in the last bit.
 //
 // # float32 or float64
 //

@@ -113,6 +113,17 @@ func Read(b []byte, source string) (*Model, error) {
 	}
 	m.info = info
 	m.classes = h.Classes
+	m.decision = h.Decision
+	m.rho = 1
+	for i := range m.layers {
+		if l := &m.layers[i]; l.kind == kindDense {
+			if l.w32 != nil {
+				m.rho *= arith.Norm(l.w32)
+			} else {
+				m.rho *= arith.Norm(l.w64)
+			}
+		}
+	}
 	return m, nil
 }
 

@@ -7,6 +7,8 @@ import (
 	"time"
 
 	"github.com/rhomb/rhomb/data/prep"
+	"github.com/rhomb/rhomb/internal/arith"
+	"github.com/rhomb/rhomb/net/modelfile/schema"
 )
 
 // Model is a loaded classifier: its layers, its preprocessing and its
@@ -23,6 +25,10 @@ type Model struct {
 	inputs       []string       // the pipeline's input fields
 	featureNames []string
 	classes      []string
+	// decision is how scores become an answer (nil: arg-max, threshold
+	// 0); rho = ∏‖W_k‖_F over the dense layers, for normalized margins.
+	decision *schema.Decision
+	rho      float64
 }
 
 // Info describes a model: where it came from and what it takes and gives.
@@ -89,6 +95,15 @@ func (m *Model) Inputs() []string { return m.inputs }
 // model's own.
 func (m *Model) FeatureNames() []string { return m.featureNames }
 
+// Scale returns ρ = ∏‖W_k‖_F over the dense layers, the scale that
+// normalized margins (Answer.Margin) are divided by.
+func (m *Model) Scale() float64 { return m.rho }
+
+// Decision returns how the model turns scores into answers (threshold,
+// calibration, prediction sets, reject option), or nil for the plain
+// rule. It is the model's own and must not be modified.
+func (m *Model) Decision() *schema.Decision { return m.decision }
+
 // Pipeline returns the model's preprocessing, or nil. It is the model's
 // own and must not be modified.
 func (m *Model) Pipeline() *prep.Pipeline { return m.pipeline }
@@ -106,6 +121,23 @@ type Answer struct {
 	// signed score for a ±1 binary model. The slice belongs to the Work
 	// and is overwritten by its next use; copy it to keep it.
 	Scores []float64
+	// Margin is the row's normalized margin: how far its scores are from
+	// a different answer (the largest score minus the second; for one
+	// signed score, its distance from the threshold), divided by
+	// ρ = ∏‖W_k‖_F over the dense layers.
+	Margin float64
+	// Probabilities are the calibrated class probabilities, one per class
+	// (two for a model with one signed score), when the model file holds
+	// a calibration; nil otherwise. They belong to the Work.
+	Probabilities []float64
+	// Set is the split-conformal prediction set, the indices of the
+	// classes in it in increasing order, when the model file holds one;
+	// nil otherwise. It belongs to the Work.
+	Set []int
+	// Abstained reports that the model declines to answer this row: its
+	// normalized margin is below the floor fitted for the model's target
+	// error rate. Class and Label still say what the answer would be.
+	Abstained bool
 }
 
 // Work holds the buffers one goroutine needs to classify: a Work may not
@@ -119,6 +151,8 @@ type Work struct {
 	a32    []float32 // layer outputs, float32 models
 	b32    []float32
 	scores []float64 // batch outputs
+	probs  []float64 // batch probabilities
+	sets   []int     // batch prediction sets
 	cols   []prep.Column
 	num    []float64 // backing for cols
 	cat    []string
@@ -199,32 +233,55 @@ func infText(v float64) string {
 
 // finish runs the network on w.feat-like row x and writes its outputs
 // into dst.
-func (m *Model) run(w *Work, x, dst []float64) (Answer, error) {
+func (m *Model) run(w *Work, x, dst []float64, row int) (Answer, error) {
 	m.scores(w, x, dst)
-	return m.answer(dst)
+	return m.answer(w, dst, row)
 }
 
-func (m *Model) answer(s []float64) (Answer, error) {
+func (m *Model) answer(w *Work, s []float64, row int) (Answer, error) {
 	for _, v := range s {
 		if math.IsNaN(v) || math.IsInf(v, 0) {
 			return Answer{}, ErrOutput
 		}
 	}
-	c := 0
-	if len(s) == 1 {
-		if s[0] > 0 {
-			c = 1
-		}
-	} else {
-		for j, v := range s {
-			if v > s[c] {
-				c = j
-			}
-		}
+	d := m.decision
+	threshold := 0.0
+	if d != nil && d.Threshold != nil {
+		threshold = *d.Threshold
 	}
-	a := Answer{Class: c, Scores: s}
+	c := arith.Decide(s, threshold)
+	a := Answer{Class: c, Scores: s, Margin: arith.Gap(s, threshold)}
+	if m.rho > 0 {
+		a.Margin /= m.rho
+	}
 	if m.classes != nil {
 		a.Label = m.classes[c]
+	}
+	if d == nil {
+		return a, nil
+	}
+	if cal := d.Calibration; cal != nil {
+		k := max(len(s), 2)
+		p := w.probs[row*k : (row+1)*k]
+		if len(s) == 1 {
+			p[1] = arith.Sigmoid(cal.A*s[0] + cal.B)
+			p[0] = 1 - p[1]
+		} else {
+			arith.Softmax(s, cal.Temperature, p)
+		}
+		a.Probabilities = p
+		if sets := d.Sets; sets != nil {
+			set := w.sets[row*k : row*k]
+			for j, pj := range p {
+				if 1-pj <= sets.Quantile {
+					set = append(set, j)
+				}
+			}
+			a.Set = set
+		}
+	}
+	if ab := d.Abstain; ab != nil && a.Margin < ab.MarginFloor {
+		a.Abstained = true
 	}
 	return a, nil
 }
@@ -239,6 +296,12 @@ func (w *Work) grow(rows int) {
 	if n := rows * w.m.outputs; len(w.scores) < n {
 		w.scores = make([]float64, n)
 	}
+	if d := w.m.decision; d != nil && d.Calibration != nil {
+		if n := rows * max(w.m.outputs, 2); len(w.probs) < n {
+			w.probs = make([]float64, n)
+			w.sets = make([]int, n)
+		}
+	}
 }
 
 // ClassifyVector classifies one feature vector (len Features). A wrong
@@ -249,7 +312,7 @@ func (m *Model) ClassifyVector(w *Work, x []float64) (Answer, error) {
 	if err := m.checkVector(x); err != nil {
 		return Answer{}, err
 	}
-	return m.run(w, x, w.one())
+	return m.run(w, x, w.one(), 0)
 }
 
 // ClassifyFields classifies one row of raw cells, one per input field in
@@ -265,7 +328,7 @@ func (m *Model) ClassifyFields(w *Work, fields []string) (Answer, error) {
 	if err := m.pipeline.ApplyStrings(fields, w.feat); err != nil {
 		return Answer{}, err
 	}
-	return m.run(w, w.feat, w.one())
+	return m.run(w, w.feat, w.one(), 0)
 }
 
 // ClassifyMap classifies one row of raw cells by field name
@@ -280,7 +343,7 @@ func (m *Model) ClassifyMap(w *Work, fields map[string]string) (Answer, error) {
 	if err := m.pipeline.ApplyMap(fields, w.feat); err != nil {
 		return Answer{}, err
 	}
-	return m.run(w, w.feat, w.one())
+	return m.run(w, w.feat, w.one(), 0)
 }
 
 // ClassifyVectors classifies rows feature vectors held row-major in x
@@ -299,7 +362,7 @@ func (m *Model) ClassifyVectors(w *Work, x []float64, rows int, dst []Answer) er
 		if err := m.checkVector(row); err != nil {
 			return &RowError{Row: r, Err: err}
 		}
-		a, err := m.run(w, row, w.scores[r*o:(r+1)*o])
+		a, err := m.run(w, row, w.scores[r*o:(r+1)*o], r)
 		if err != nil {
 			return &RowError{Row: r, Err: err}
 		}
@@ -324,7 +387,7 @@ func (m *Model) ClassifyMaps(w *Work, rows []map[string]string, dst []Answer) er
 		if err := m.pipeline.ApplyMap(fields, w.feat); err != nil {
 			return &RowError{Row: r, Err: err}
 		}
-		a, err := m.run(w, w.feat, w.scores[r*o:(r+1)*o])
+		a, err := m.run(w, w.feat, w.scores[r*o:(r+1)*o], r)
 		if err != nil {
 			return &RowError{Row: r, Err: err}
 		}

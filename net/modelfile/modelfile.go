@@ -51,6 +51,11 @@ type Model[T net.Float] struct {
 	// widened to float64. Both are written only with a Checkpoint.
 	Session json.RawMessage
 	Kept    [][]float64
+	// Decision is how a served model turns scores into answers
+	// (threshold, calibration, prediction sets, reject option), fitted on
+	// validation rows after training (package optim/recipe); nil for the
+	// plain arg-max rule.
+	Decision *schema.Decision
 }
 
 // Trainable returns the model the trainer updates: the wrapper if there
@@ -99,7 +104,7 @@ func encode[T net.Float](m *Model[T]) ([]byte, error) {
 		Format: schema.Format, Library: "rhomb " + version.Version,
 		Created: time.Now().UTC().Format(time.RFC3339), DType: dtypeOf[T](),
 		Inputs: m.Network.In(), Classes: m.Classes, Label: m.Label, Loss: m.Loss,
-		Training: m.Training, Metrics: m.Metrics,
+		Training: m.Training, Metrics: m.Metrics, Decision: m.Decision,
 	}
 	h.Graph = specs
 	if m.Pipeline != nil {

@@ -67,7 +67,7 @@ func Read[T net.Float](b []byte, source string) (*Model[T], error) {
 			return fail(schema.ErrShape, "%v", err)
 		}
 	}
-	m := &Model[T]{Network: n, Pipeline: f.Pipeline, Classes: h.Classes, Label: h.Label, Loss: h.Loss, Training: h.Training, Metrics: h.Metrics, Library: h.Library}
+	m := &Model[T]{Network: n, Pipeline: f.Pipeline, Classes: h.Classes, Label: h.Label, Loss: h.Loss, Training: h.Training, Metrics: h.Metrics, Library: h.Library, Decision: h.Decision}
 	if h.Created != "" {
 		m.Created, _ = time.Parse(time.RFC3339, h.Created)
 	}

@@ -76,7 +76,7 @@ func Parse(b []byte, source string) (*File, error) {
 	f := &p.f
 	f.Data, f.DataStart, f.ByName, f.Sum = cf.Data, cf.DataStart, cf.ByName, cf.Sum
 	f.Header.Tensors = cf.Tensors
-	for _, step := range []func() error{p.graph, p.classes, p.pipeline, p.normalization, p.checkpoint, p.tensors} {
+	for _, step := range []func() error{p.graph, p.classes, p.pipeline, p.normalization, p.checkpoint, p.tensors, p.decision} {
 		if err := step(); err != nil {
 			return nil, err
 		}
@@ -464,6 +464,53 @@ func (p *parser) tensors() error {
 				return p.fail(p.f.DataStart+t.Offset, cause, "tensor %q: value %d (row %d, column %d) is %v", t.Name, k, k/cols, k%cols, v)
 			}
 		}
+	}
+	return nil
+}
+
+// decision checks the maps a served model answers with.
+func (p *parser) decision() error {
+	d := p.f.Header.Decision
+	if d == nil {
+		return nil
+	}
+	finite := func(v float64) bool { return !math.IsNaN(v) && !math.IsInf(v, 0) }
+	bad := func(format string, args ...any) error {
+		return p.header(ErrHeader, "decision: "+format, args...)
+	}
+	two := p.f.Outputs == 1
+	if d.Threshold != nil && (!two || !finite(*d.Threshold)) {
+		return bad("a threshold belongs to a two-class model with one signed score, and must be a finite number")
+	}
+	if c := d.Calibration; c != nil {
+		switch {
+		case c.Kind == CalibrationPlatt && two:
+			if !finite(c.A) || !finite(c.B) || c.A <= 0 {
+				return bad("Platt scaling with a = %v, b = %v; want finite numbers with a > 0", c.A, c.B)
+			}
+		case c.Kind == CalibrationTemperature && !two:
+			if !finite(c.Temperature) || c.Temperature <= 0 {
+				return bad("temperature %v; want a finite number > 0", c.Temperature)
+			}
+		default:
+			return bad("calibration %q does not fit a model with %d outputs (Platt scaling for one signed score, temperature for several)", c.Kind, p.f.Outputs)
+		}
+	}
+	if s := d.Sets; s != nil {
+		if d.Calibration == nil {
+			return bad("prediction sets need calibrated probabilities")
+		}
+		if !(s.Coverage > 0 && s.Coverage < 1) || !(s.Quantile >= 0 && s.Quantile <= 1) {
+			return bad("sets with coverage %v and quantile %v; want 0 < coverage < 1 and 0 ≤ quantile ≤ 1", s.Coverage, s.Quantile)
+		}
+	}
+	if a := d.Abstain; a != nil {
+		if !finite(a.MarginFloor) || a.MarginFloor < 0 || !(a.TargetError > 0 && a.TargetError < 1) || !(a.Answered >= 0 && a.Answered <= 1) {
+			return bad("abstain with margin floor %v, target error %v, answered %v; want a finite floor ≥ 0, 0 < target < 1, 0 ≤ answered ≤ 1", a.MarginFloor, a.TargetError, a.Answered)
+		}
+	}
+	if d.Rows < 0 {
+		return bad("rows %d", d.Rows)
 	}
 	return nil
 }

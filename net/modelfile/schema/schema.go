@@ -94,6 +94,74 @@ type Header struct {
 	Training      json.RawMessage `json:"training,omitempty"`
 	Metrics       map[string]any  `json:"metrics,omitempty"`
 	Checkpoint    *Checkpoint     `json:"checkpoint,omitempty"`
+	// Decision, when present, is how a served model turns its scores
+	// into an answer: a decision threshold, calibrated probabilities,
+	// prediction sets and a reject option, fitted on validation rows.
+	Decision *Decision `json:"decision,omitempty"`
+}
+
+// Decision holds the maps fitted on validation rows after training that
+// turn a model's scores into an answer. Every part is optional; a reader
+// that finds none answers with the arg-max class (for one signed score,
+// the second class when the score is positive), as before.
+type Decision struct {
+	// Threshold, for a two-class model with one signed score, is the
+	// score above which the answer is the second class (0 when absent).
+	// ThresholdFor says how it was chosen: the metric it maximized on
+	// the validation rows ("accuracy", "balanced", "macro-f1") or
+	// "given" by the user.
+	Threshold    *float64 `json:"threshold,omitempty"`
+	ThresholdFor string   `json:"threshold_for,omitempty"`
+	// Calibration maps scores to class probabilities: Platt scaling for
+	// one signed score, P(second class) = 1/(1 + exp(−(A·s + B)));
+	// temperature scaling for several, softmax(s/T).
+	Calibration *Calibration `json:"calibration,omitempty"`
+	// Sets, when present, makes split-conformal prediction sets from the
+	// calibrated probabilities: every class y with 1 − p_y ≤ Quantile.
+	Sets *Sets `json:"sets,omitempty"`
+	// Abstain, when present, is the reject option: no answer for a row
+	// whose normalized margin is below MarginFloor.
+	Abstain *Abstain `json:"abstain,omitempty"`
+	// Rows is the number of validation rows the maps were fitted on.
+	Rows int `json:"rows,omitempty"`
+}
+
+// Calibration kinds.
+const (
+	CalibrationPlatt       = "platt"
+	CalibrationTemperature = "temperature"
+)
+
+// Calibration is a fitted map from scores to probabilities.
+type Calibration struct {
+	Kind        string  `json:"kind"` // CalibrationPlatt or CalibrationTemperature
+	A           float64 `json:"a,omitempty"`
+	B           float64 `json:"b,omitempty"`
+	Temperature float64 `json:"temperature,omitempty"`
+}
+
+// Sets are split-conformal prediction sets with a coverage level.
+type Sets struct {
+	// Coverage is the level 1 − α asked for: for rows exchangeable with
+	// the calibration rows, the true class is in the set with
+	// probability at least Coverage.
+	Coverage float64 `json:"coverage"`
+	// Quantile is q̂, the conformal quantile of 1 − p_true on the
+	// calibration rows, at most 1 (1 puts every class in every set).
+	Quantile float64 `json:"quantile"`
+}
+
+// Abstain is the reject option on the normalized margin: the gap between
+// the largest and the second-largest score (for one signed score, its
+// distance from the threshold), divided by ρ = ∏‖W_k‖_F over the dense
+// layers.
+type Abstain struct {
+	MarginFloor float64 `json:"margin_floor"`
+	// TargetError is the error rate among answered rows the floor was
+	// chosen for on the validation rows; Answered the fraction of those
+	// rows it answered.
+	TargetError float64 `json:"target_error"`
+	Answered    float64 `json:"answered"`
 }
 
 // Node is one node of the graph: enough to build it again.
