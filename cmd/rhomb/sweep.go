@@ -29,8 +29,9 @@ import (
 )
 
 const sweepSummary = `Train one model for every combination of initial scale ρ0, weight decay λ,
-learning rate η, temperature T and seed, and rank the runs by validation
-accuracy (ties: the larger minimum normalized margin of the training rows,
+learning rate η, temperature T and seed, and rank the runs by the
+validation score of -metric (accuracy unless it names balanced, macro-f1
+or auc; ties: the larger minimum normalized margin of the training rows,
 then the smaller margin bound). -rho0, -decay, -lr, -temp and -seed take
 comma-separated lists; every other train flag sets what all runs share.
 
@@ -45,8 +46,8 @@ On a cluster, -shard i/n trains only the points whose number is i modulo n;
 Job). Each shard writes its own -o and -model; rhomb sweep-merge combines
 them (docs/sweeps.md). Interrupted, a sweep writes nothing: rerun it.
 
-Choosing the best of many runs by validation accuracy flatters that
-accuracy: judge the chosen model on -test rows, which the sweep never
+Choosing the best of many runs by a validation score flatters that
+score: judge the chosen model on -test rows, which the sweep never
 ranks by.`
 
 const sweepExample = `  rhomb sweep -data readings.csv -label condition -missing impute -hidden 32,32 \
@@ -83,7 +84,7 @@ func runSweep(e *env, args []string) error {
 	var o sweepOptions
 	fs.StringVar(&o.out, "o", "", "results `file` to write, JSON Lines, one line per run (required)")
 	fs.StringVar(&o.model, "model", "", "model `file` for the best run (default: -o with its extension replaced by .model)")
-	fs.StringVar(&o.heatmap, "heatmap", "", "draw validation accuracy over ρ0 × λ to this `file` (.png, .svg or .pdf)")
+	fs.StringVar(&o.heatmap, "heatmap", "", "draw the validation score over ρ0 × λ to this `file` (.png, .svg or .pdf)")
 	fs.StringVar(&o.shard, "shard", "", "train only shard `i/n` of the grid; /n takes i from "+sweep.IndexEnv)
 	fs.IntVar(&o.workers, "workers", 0, "`runs` to train at once (0: one per processor, GOMAXPROCS)")
 	fs.IntVar(&o.top, "top", 10, "`rows` of the ranking to print (0: all)")
@@ -233,7 +234,7 @@ func sweepRun[T net.Float](e *env, c *config, ax *sweepAxes, o *sweepOptions, sh
 	trainOne := func(ctx context.Context, pt sweep.Point) (sweep.Result, error) {
 		r, m, err := sweepPoint(ctx, c, p, weights, gr, pt, o.gamma)
 		if err == nil {
-			m.Metrics = map[string]any{"validation_accuracy": r.ValAccuracy, "train_accuracy": r.TrainAccuracy, "rho": r.Rho,
+			m.Metrics = map[string]any{"validation_accuracy": r.ValAccuracy, "validation_score": r.ValScore, "ranked_by": r.Metric, "train_accuracy": r.TrainAccuracy, "rho": r.Rho,
 				"margin_min": r.MarginMin, "margin_mean": r.MarginMean, "bound": r.Bound, "sweep_point": pt.Index,
 				"sweep_points": total, "sweep_fingerprint": fingerprint, "split_seed": c.Seed}
 			best.offer(r, m)
@@ -244,7 +245,7 @@ func sweepRun[T net.Float](e *env, c *config, ax *sweepAxes, o *sweepOptions, sh
 			if err != nil {
 				fmt.Fprintf(e.stderr, "[%d/%d] %s: failed: %v\n", finished, len(points), pt, err)
 			} else {
-				fmt.Fprintf(e.stderr, "[%d/%d] %s: validation %.4f, min margin %.4g, ρ %.4g\n", finished, len(points), pt, r.ValAccuracy, r.MarginMin, r.Rho)
+				fmt.Fprintf(e.stderr, "[%d/%d] %s: validation %s %.4f, min margin %.4g, ρ %.4g\n", finished, len(points), pt, r.Metric, r.ValScore, r.MarginMin, r.Rho)
 			}
 			printMu.Unlock()
 		}
@@ -293,7 +294,7 @@ func sweepRun[T net.Float](e *env, c *config, ax *sweepAxes, o *sweepOptions, sh
 		return fmt.Errorf("sweep: all %d runs failed; the first: %s", len(results), ranked[0].Err)
 	}
 	b := best.result
-	fmt.Fprintf(w, "best: %s: validation accuracy %.4f", b.Point, b.ValAccuracy)
+	fmt.Fprintf(w, "best: %s: validation %s %.4f", b.Point, b.Metric, b.ValScore)
 	if t, ok := best.model.Metrics["test_accuracy"].(float64); ok {
 		fmt.Fprintf(w, ", test accuracy %.4f on %d rows", t, p.test.Rows)
 	}
@@ -391,6 +392,7 @@ func sweepPoint[T net.Float](ctx context.Context, c *config, p *prepared[T], wei
 		return r, nil, err
 	}
 	m.Point = pt
+	m.ValScore, m.Metric = recipe.Evaluate(model, p.val).Value(plan.Metric), plan.Metric.String()
 	sweep.FromRun(&m, res)
 	return m, &modelfile.Model[T]{Network: n, Normalized: wrapped, Pipeline: p.pipeline, Classes: p.classes,
 		Label: c.Label, Loss: lf.Name(), Training: cp.record()}, nil
@@ -410,7 +412,7 @@ func runSweepMerge(e *env, args []string) error {
 	fs.Var(&in, "in", "comma-separated results `files` or patterns (results/shard-*.jsonl; quote them from a shell) (required)")
 	out := fs.String("o", "", "write the merged ranking as one results `file`")
 	model := fs.String("model", "", "copy the best run's model to this `file`")
-	heatmap := fs.String("heatmap", "", "draw validation accuracy over ρ0 × λ to this `file` (.png, .svg or .pdf)")
+	heatmap := fs.String("heatmap", "", "draw the validation score over ρ0 × λ to this `file` (.png, .svg or .pdf)")
 	top := fs.Int("top", 10, "`rows` of the ranking to print (0: all)")
 	if err := parse(fs, args); err != nil {
 		return err
@@ -475,7 +477,7 @@ func runSweepMerge(e *env, args []string) error {
 	if *out != "" {
 		fmt.Fprintf(w, "results: %s\n", *out)
 	}
-	fmt.Fprintf(w, "best: %s: validation accuracy %.4f", best.Point, best.ValAccuracy)
+	fmt.Fprintf(w, "best: %s: validation %s %.4f", best.Point, best.Metric, best.ValScore)
 	if *model != "" {
 		fmt.Fprintf(w, "; model copied from %s to %s", src, *model)
 	}

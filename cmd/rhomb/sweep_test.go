@@ -250,3 +250,31 @@ func TestSweepPointIsTrain(t *testing.T) {
 		t.Errorf("validation accuracy: sweep %v, train %v", a.Metrics["validation_accuracy"], b.Metrics["validation_accuracy"])
 	}
 }
+
+// TestSweepRanksByMetric: with -metric balanced, the table's score column
+// and every result carry balanced accuracy, and the ranking's scores do
+// not rise down the table (the rule of sweep.Rank).
+func TestSweepRanksByMetric(t *testing.T) {
+	dir := t.TempDir()
+	csv := demoCSV(t, dir, 200)
+	os.Unsetenv(sweep.IndexEnv)
+	out := filepath.Join(dir, "s.jsonl")
+	r := mustRunFn(t, runSweep, "-data", csv, "-label", demo.Label, "-missing", "impute", "-hidden", "8", "-epochs", "2", "-batch", "16",
+		"-seed", "3", "-quiet", "-metric", "balanced", "-rho0", "0.05,0.5", "-decay", "1e-4,1e-2", "-o", out)
+	if !strings.Contains(r.stdout, "validation balanced-accuracy") || !strings.Contains(r.stdout, "best: ") || !strings.Contains(r.stdout, "validation balanced-accuracy ") {
+		t.Fatalf("the report does not name the metric:\n%s", r.stdout)
+	}
+	res, err := sweep.LoadResults(out)
+	if err != nil {
+		t.Fatal(err)
+	}
+	ranked := sweep.Rank(res.Results)
+	for i, x := range ranked {
+		if x.Metric != "balanced-accuracy" {
+			t.Fatalf("result %d ranked by %q", i, x.Metric)
+		}
+		if i > 0 && x.ValScore > ranked[i-1].ValScore {
+			t.Fatalf("rank %d has score %v above rank %d's %v", i+1, x.ValScore, i, ranked[i-1].ValScore)
+		}
+	}
+}

@@ -103,6 +103,20 @@ func (e *Evaluation) AUC() float64 {
 	return score.ROCAUC(e.scores, e.positive)
 }
 
+// Value is the evaluation's value by metric m: what a run ranks its
+// epochs, and a sweep its runs, by.
+func (e *Evaluation) Value(m Metric) float64 {
+	switch m {
+	case Balanced:
+		return e.Balanced()
+	case MacroF1:
+		return e.MacroF1()
+	case AUC:
+		return e.AUC()
+	}
+	return e.Accuracy()
+}
+
 // Support is the number of rows of class k.
 func (e *Evaluation) Support(k int) int {
 	n := 0

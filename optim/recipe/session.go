@@ -455,15 +455,7 @@ func (s *Session[T]) score(epoch int, rate float64) Score {
 	sc := Score{Epoch: epoch, Rate: rate}
 	c := Evaluate(s.model, s.val)
 	sc.Accuracy, sc.Balanced, sc.MacroF1, sc.AUC, sc.MinMargin = c.Accuracy(), c.Balanced(), c.MacroF1(), c.AUC(), c.MinMargin
-	sc.Value = sc.Accuracy
-	switch s.plan.Metric {
-	case Balanced:
-		sc.Value = sc.Balanced
-	case MacroF1:
-		sc.Value = sc.MacroF1
-	case AUC:
-		sc.Value = sc.AUC
-	}
+	sc.Value = c.Value(s.plan.Metric)
 	return sc
 }
 

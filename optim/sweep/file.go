@@ -148,6 +148,8 @@ const (
 type line struct {
 	Point
 	ValAccuracy   num     `json:"validation_accuracy"`
+	ValScore      *num    `json:"validation_score,omitempty"` // absent in files written before the metric could be chosen
+	Metric        string  `json:"metric,omitempty"`
 	TrainAccuracy num     `json:"train_accuracy"`
 	MarginMin     num     `json:"margin_min"`
 	MarginMean    num     `json:"margin_mean"`
@@ -220,7 +222,8 @@ func (r *Results) WriteTo(w io.Writer) (int64, error) {
 		return 0, err
 	}
 	for _, x := range r.Results {
-		if err := enc.Encode(line{Point: x.Point, ValAccuracy: num(x.ValAccuracy), TrainAccuracy: num(x.TrainAccuracy),
+		vs := num(x.ValScore)
+		if err := enc.Encode(line{Point: x.Point, ValAccuracy: num(x.ValAccuracy), ValScore: &vs, Metric: x.Metric, TrainAccuracy: num(x.TrainAccuracy),
 			MarginMin: num(x.MarginMin), MarginMean: num(x.MarginMean), Bound: num(x.Bound), Rho: num(x.Rho), Loss: num(x.Loss),
 			Epochs: x.Epochs, Status: x.Status, Seconds: x.Seconds, Err: x.Err}); err != nil {
 			return 0, err
@@ -301,9 +304,16 @@ func ReadResults(rd io.Reader, name string) (*Results, error) {
 		if err := dec.Decode(&l); err != nil {
 			return nil, bad(n, "result: %v", err)
 		}
-		r.Results = append(r.Results, Result{Point: l.Point, ValAccuracy: float64(l.ValAccuracy), TrainAccuracy: float64(l.TrainAccuracy),
+		res := Result{Point: l.Point, ValAccuracy: float64(l.ValAccuracy), ValScore: float64(l.ValAccuracy), Metric: l.Metric, TrainAccuracy: float64(l.TrainAccuracy),
 			MarginMin: float64(l.MarginMin), MarginMean: float64(l.MarginMean), Bound: float64(l.Bound), Rho: float64(l.Rho),
-			Loss: float64(l.Loss), Epochs: l.Epochs, Status: l.Status, Seconds: l.Seconds, Err: l.Err})
+			Loss: float64(l.Loss), Epochs: l.Epochs, Status: l.Status, Seconds: l.Seconds, Err: l.Err}
+		if l.ValScore != nil {
+			res.ValScore = float64(*l.ValScore)
+		}
+		if res.Metric == "" {
+			res.Metric = "accuracy"
+		}
+		r.Results = append(r.Results, res)
 		lines = append(lines, n)
 	}
 	if err := sc.Err(); err != nil {

@@ -33,6 +33,7 @@ func Measure[T net.Float](m gauge.Model[T], train, val *data.Set[T], bound gauge
 	r.TrainAccuracy = accuracy(m, train)
 	if val != nil {
 		r.ValAccuracy = accuracy(m, val)
+		r.ValScore, r.Metric = r.ValAccuracy, "accuracy"
 	}
 	if bound.Gamma != 0 {
 		br, err := gauge.BoundOf(m, train, nil, bound)

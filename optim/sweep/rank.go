@@ -11,12 +11,14 @@ import (
 // they were computed or merged:
 //
 //  1. runs that succeeded before runs that failed;
-//  2. higher validation accuracy;
+//  2. a higher validation score by the sweep's metric (ValScore:
+//     accuracy unless the sweep ranks by balanced accuracy, macro-F1 or
+//     AUC);
 //  3. then a larger minimum normalized margin on the training rows;
 //  4. then a smaller margin bound;
 //  5. then the smaller point index.
 //
-// Keys 3 and 4 break ties of accuracy, which are common: accuracy on n
+// Keys 3 and 4 break ties of the score, which are common: accuracy on n
 // validation rows takes only n+1 values. They follow the theory that a
 // larger normalized margin and a smaller norm-based bound go with lower
 // test error; neither is a prediction of it. A NaN (a measure not taken)
@@ -32,7 +34,7 @@ func Compare(a, b Result) int {
 	if c := cmp.Compare(btoi(a.Failed()), btoi(b.Failed())); c != 0 {
 		return c
 	}
-	if c := higher(a.ValAccuracy, b.ValAccuracy); c != 0 {
+	if c := higher(a.ValScore, b.ValScore); c != 0 {
 		return c
 	}
 	if c := higher(a.MarginMin, b.MarginMin); c != 0 {

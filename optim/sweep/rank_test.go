@@ -1,7 +1,9 @@
 package sweep
 
 import (
+	"bytes"
 	"math"
+	"strings"
 	"testing"
 )
 
@@ -11,7 +13,7 @@ import (
 func TestRankWorkedExample(t *testing.T) {
 	nan := math.NaN()
 	mk := func(index int, acc, margin, bound float64, err string) Result {
-		return Result{Point: Point{Index: index}, ValAccuracy: acc, MarginMin: margin, Bound: bound, Err: err}
+		return Result{Point: Point{Index: index}, ValAccuracy: acc, ValScore: acc, MarginMin: margin, Bound: bound, Err: err}
 	}
 	in := []Result{
 		mk(0, 0.9, 0.1, 3, "diverged"), // failed: last of all, whatever its numbers
@@ -62,4 +64,47 @@ func equalInts(a, b []int) bool {
 		}
 	}
 	return true
+}
+
+// TestRankByChosenMetric: the first key is the validation score by the
+// sweep's metric, not accuracy: a run with lower accuracy but higher
+// balanced accuracy ranks first when the sweep ranks by balanced
+// accuracy. A results file keeps the score and the metric, and a file
+// written before the metric could be chosen reads with the score equal to
+// its accuracy.
+func TestRankByChosenMetric(t *testing.T) {
+	a := Result{Point: Point{Index: 0}, ValAccuracy: 0.9, ValScore: 0.55, Metric: "balanced-accuracy"}
+	b := Result{Point: Point{Index: 1}, ValAccuracy: 0.8, ValScore: 0.75, Metric: "balanced-accuracy"}
+	if r := Rank([]Result{a, b}); r[0].Index != 1 {
+		t.Fatalf("ranked %d first; the higher balanced accuracy is run 1", r[0].Index)
+	}
+	gr := &Grid{Rho0: []float64{0.5, 1}}
+	a.Point, b.Point = gr.Points()[0], gr.Points()[1]
+	res, err := NewResults(gr, All, []Result{a, b})
+	if err != nil {
+		t.Fatal(err)
+	}
+	var buf bytes.Buffer
+	if _, err := res.WriteTo(&buf); err != nil {
+		t.Fatal(err)
+	}
+	back, err := ReadResults(bytes.NewReader(buf.Bytes()), "r.jsonl")
+	if err != nil {
+		t.Fatal(err)
+	}
+	if got := back.Results[1]; got.ValScore != 0.75 || got.Metric != "balanced-accuracy" {
+		t.Fatalf("read back %+v", got)
+	}
+	old := strings.ReplaceAll(buf.String(), `"validation_score":0.55,"metric":"balanced-accuracy",`, "")
+	old = strings.ReplaceAll(old, `"validation_score":0.75,"metric":"balanced-accuracy",`, "")
+	if old == buf.String() {
+		t.Fatalf("the test's edit did not apply to %s", buf.String())
+	}
+	back, err = ReadResults(strings.NewReader(old), "old.jsonl")
+	if err != nil {
+		t.Fatal(err)
+	}
+	if got := back.Results[0]; got.ValScore != 0.9 || got.Metric != "accuracy" {
+		t.Fatalf("an old file read as %+v; want the score equal to the accuracy 0.9", got)
+	}
 }

@@ -19,7 +19,8 @@ import (
 
 // WriteTable writes the first top results of a ranking (all when top ≤ 0)
 // as an aligned text table, one row per run: rank, point, its values, the
-// validation and training accuracy, the training set's minimum and mean
+// validation score (by the sweep's metric, named in the header; accuracy
+// by default) and training accuracy, the training set's minimum and mean
 // normalized margin, the bound, ρ and the status. A measure that is NaN
 // shows as "-"; a failed run shows its error.
 func WriteTable(w io.Writer, ranked []Result, top int) error {
@@ -27,7 +28,15 @@ func WriteTable(w io.Writer, ranked []Result, top int) error {
 		top = len(ranked)
 	}
 	tw := tabwriter.NewWriter(w, 0, 0, 2, ' ', tabwriter.AlignRight)
-	fmt.Fprintln(tw, "rank\tpoint\tρ0\tλ\tη\tT\tseed\tvalidation\ttrain\tmin margin\tmean margin\tbound\tρ\t status")
+	metric := "accuracy"
+	if len(ranked) > 0 && ranked[0].Metric != "" {
+		metric = ranked[0].Metric
+	}
+	val := "validation"
+	if metric != "accuracy" {
+		val = "validation " + metric
+	}
+	fmt.Fprintf(tw, "rank\tpoint\tρ0\tλ\tη\tT\tseed\t%s\ttrain\tmin margin\tmean margin\tbound\tρ\t status\n", val)
 	for i, r := range ranked[:top] {
 		status := r.Status
 		if r.Failed() {
@@ -35,7 +44,7 @@ func WriteTable(w io.Writer, ranked []Result, top int) error {
 		}
 		fmt.Fprintf(tw, "%d\t%d\t%s\t%s\t%s\t%s\t%d\t%s\t%s\t%s\t%s\t%s\t%s\t %s\n", i+1, r.Index,
 			g(r.Rho0), g(r.WeightDecay), g(r.LearningRate), g(r.Temperature), r.Seed,
-			fixed(r.ValAccuracy, 4), fixed(r.TrainAccuracy, 4), sig(r.MarginMin, 4), sig(r.MarginMean, 4), sig(r.Bound, 5), sig(r.Rho, 4), status)
+			fixed(r.ValScore, 4), fixed(r.TrainAccuracy, 4), sig(r.MarginMin, 4), sig(r.MarginMean, 4), sig(r.Bound, 5), sig(r.Rho, 4), status)
 	}
 	if err := tw.Flush(); err != nil {
 		return err
@@ -73,10 +82,10 @@ func firstLine(s string, n int) string {
 // the mean of value(r) over the results r that succeeded, whose value is
 // not NaN, and whose ρ0 is axes.Rho0[i] and λ is axes.WeightDecay[j]
 // (that is, over learning rates, temperatures and seeds). A cell with no
-// such result is NaN. A nil value means validation accuracy.
+// such result is NaN. A nil value means the validation score (ValScore).
 func Cells(axes Axes, results []Result, value func(Result) float64) [][]float64 {
 	if value == nil {
-		value = func(r Result) float64 { return r.ValAccuracy }
+		value = func(r Result) float64 { return r.ValScore }
 	}
 	pos := func(v []float64, x float64) int {
 		for i, y := range v {
@@ -114,13 +123,13 @@ func Cells(axes Axes, results []Result, value func(Result) float64) [][]float64 
 }
 
 // HeatMapOptions chooses what a heat map shows. The zero value shows the
-// validation accuracy.
+// validation score by the sweep's metric.
 type HeatMapOptions struct {
 	// Value is the measure to average into each cell (see Cells); nil
-	// means Result.ValAccuracy.
+	// means Result.ValScore.
 	Value func(Result) float64
-	// Name names the measure in the title; empty means "validation
-	// accuracy".
+	// Name names the measure in the title; empty means "validation " and
+	// the sweep's metric.
 	Name string
 }
 
@@ -134,7 +143,7 @@ func (g cellGrid) Z(c, r int) float64 { return g[c][r] }
 func (g cellGrid) X(c int) float64    { return float64(c) }
 func (g cellGrid) Y(r int) float64    { return float64(r) }
 
-// HeatMap draws a measure (validation accuracy unless o says otherwise)
+// HeatMap draws a measure (the validation score unless o says otherwise)
 // over ρ0 (across) and λ (up), averaged over the learning rates,
 // temperatures and seeds of each cell (Cells). Every cell is labelled with
 // its value; a cell whose runs all failed is grey and labelled "failed".
@@ -148,6 +157,9 @@ func HeatMap(axes Axes, results []Result, o HeatMapOptions) (*plot.Plot, error) 
 	name := o.Name
 	if name == "" {
 		name = "validation accuracy"
+		if len(results) > 0 && results[0].Metric != "" {
+			name = "validation " + results[0].Metric
+		}
 	}
 	cells := Cells(axes, results, o.Value)
 	lo, hi := math.Inf(1), math.Inf(-1)

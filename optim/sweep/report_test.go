@@ -22,7 +22,7 @@ func TestCells(t *testing.T) {
 	rs := make([]Result, len(pts))
 	for k, p := range pts {
 		rs[k] = NaNResult(p)
-		rs[k].ValAccuracy = acc[k]
+		rs[k].ValAccuracy, rs[k].ValScore = acc[k], acc[k]
 	}
 	rs[5].Err = "failed"                  // cell (1, 0) keeps only run 4
 	rs[6].Err, rs[7].Err = "fail", "fail" // cell (1, 0.01) has none
@@ -42,7 +42,7 @@ func TestWriteTable(t *testing.T) {
 	rs, _ := Run(context.Background(), gr.Points(), func(_ context.Context, p Point) (Result, error) {
 		r := NaNResult(p)
 		if p.Rho0 == 1 {
-			r.ValAccuracy, r.TrainAccuracy, r.MarginMin, r.MarginMean, r.Bound, r.Rho, r.Status = 0.95, 1, 0.0123456, 0.5, 12.345, 2.5, "finished"
+			r.ValAccuracy, r.ValScore, r.TrainAccuracy, r.MarginMin, r.MarginMean, r.Bound, r.Rho, r.Status = 0.95, 0.95, 1, 0.0123456, 0.5, 12.345, 2.5, "finished"
 			return r, nil
 		}
 		return r, errors.New("loss is NaN")

@@ -16,6 +16,12 @@ type Result struct {
 	// ValAccuracy is the fraction of validation rows classified right;
 	// the first ranking key.
 	ValAccuracy float64
+	// ValScore is the validation rows' value by the sweep's ranking
+	// metric (Metric): accuracy, balanced accuracy, macro-F1 or AUC; the
+	// first ranking key. Measure sets it to ValAccuracy; a caller
+	// ranking by another metric overwrites both.
+	ValScore float64
+	Metric   string
 	// TrainAccuracy is the same on the training rows.
 	TrainAccuracy float64
 	// MarginMin and MarginMean summarize the normalized margins
@@ -49,7 +55,7 @@ func (r *Result) Failed() bool { return r.Err != "" }
 // function to fill in the ones it takes.
 func NaNResult(p Point) Result {
 	nan := math.NaN()
-	return Result{Point: p, ValAccuracy: nan, TrainAccuracy: nan, MarginMin: nan, MarginMean: nan, Bound: nan, Rho: nan, Loss: nan}
+	return Result{Point: p, ValAccuracy: nan, ValScore: nan, TrainAccuracy: nan, MarginMin: nan, MarginMean: nan, Bound: nan, Rho: nan, Loss: nan}
 }
 
 // TrainFunc trains one point and measures it. It is called from several
