@@ -80,6 +80,9 @@ func models(t testing.TB) [2]string {
 	return modelPaths
 }
 
+// quiet is a logger for tests whose logs are not looked at.
+var quiet = slog.New(slog.DiscardHandler)
+
 func load(t testing.TB, path string) *classify.Model {
 	t.Helper()
 	m, err := classify.Load(path)
@@ -115,7 +118,7 @@ func post(t testing.TB, h http.Handler, body string) (*httptest.ResponseRecorder
 // reads back to the same float64), and the model's version.
 func TestClassify(t *testing.T) {
 	m := load(t, models(t)[0])
-	h := endpoint.New(m, endpoint.Options{})
+	h := endpoint.New(m, endpoint.Options{Log: quiet})
 	rec := httptest.NewRecorder()
 	h.ServeHTTP(rec, httptest.NewRequest("POST", "/classify", strings.NewReader(`{"rows": [`+goodRow+`, `+goodRow+`]}`)))
 	if rec.Code != 200 {
@@ -129,10 +132,10 @@ func TestClassify(t *testing.T) {
 	if err != nil {
 		t.Fatal(err)
 	}
-	if resp.ModelVersion != m.Info().Version || len(resp.Predictions) != 2 {
+	if resp.ModelVersion != m.Info().Version || len(resp.Answers) != 2 {
 		t.Fatalf("response %+v", resp)
 	}
-	for _, p := range resp.Predictions {
+	for _, p := range resp.Answers {
 		if p.Class != want.Label || !slices.Equal(p.Scores, want.Scores) {
 			t.Fatalf("prediction %+v; classify gives %v %v", p, want.Label, want.Scores)
 		}
@@ -150,7 +153,7 @@ func TestClassify(t *testing.T) {
 // naming the row and field where there is one.
 func TestBadRequests(t *testing.T) {
 	m := load(t, models(t)[0])
-	h := endpoint.New(m, endpoint.Options{MaxRows: 3, MaxBodyBytes: 4096})
+	h := endpoint.New(m, endpoint.Options{MaxRows: 3, MaxBodyBytes: 4096, Log: quiet})
 	bad := strings.Replace(goodRow, "river-intake", "moon-base", 1)
 	for _, tc := range []struct {
 		name, body string
@@ -164,7 +167,13 @@ func TestBadRequests(t *testing.T) {
 		{"too many rows", `{"rows": [` + strings.Repeat(goodRow+",", 3) + goodRow + `]}`, 400, -1, ""},
 		{"too large", `{"rows": [` + strings.Repeat(goodRow+",", 40) + goodRow + `]}`, 413, -1, ""},
 		{"unknown category", `{"rows": [` + goodRow + `, ` + bad + `]}`, 400, 1, "site"},
-		{"unknown field", `{"rows": [{"colour": "red"}]}`, 400, 0, "colour"},
+		{"unknown key", `{"rows": [], "colour": "red"}`, 400, -1, ""},
+		{"null body", `null`, 400, -1, ""},
+		{"empty body", ``, 400, -1, ""},
+		{"rows not an array", `{"rows": {}}`, 400, -1, ""},
+		{"row not an object", `{"rows": [1]}`, 400, -1, ""},
+		{"number out of range", `{"vectors": [[1e999]]}`, 400, -1, ""},
+		{"nested value", `{"rows": [` + strings.Replace(goodRow, "3.283", `{"v": 3}`, 1) + `]}`, 400, 0, "crest_factor"},
 		{"not a number", `{"rows": [` + strings.Replace(goodRow, "3.283", `"high"`, 1) + `]}`, 400, 0, "crest_factor"},
 		{"bool value", `{"rows": [` + strings.Replace(goodRow, "3.283", `true`, 1) + `]}`, 400, 0, "crest_factor"},
 		{"vector width", `{"vectors": [[1, 2]]}`, 400, 0, ""},
@@ -182,24 +191,23 @@ func TestBadRequests(t *testing.T) {
 	}
 }
 
-// blockedBody is a request body that delivers nothing until released.
-type blockedBody struct{ release chan struct{} }
-
-func (b *blockedBody) Read(p []byte) (int, error) { <-b.release; return 0, io.ErrUnexpectedEOF }
-
-// TestOverloadAndTimeout: with one request in flight (stalled reading its
-// body) a second gets 503 at once; the stalled one gets 503 when its time
-// runs out. Loopback only (httptest.NewServer listens on 127.0.0.1).
+// TestOverloadAndTimeout: with one request in flight (held inside its
+// in-flight place by a test hook) a second gets 503 with Retry-After at
+// once, not queued (RFC 9110 §15.6.4 allows Retry-After on 503); the held
+// one gets 503 when its time runs out. Loopback only (httptest.NewServer
+// listens on 127.0.0.1).
 func TestOverloadAndTimeout(t *testing.T) {
 	m := load(t, models(t)[0])
-	h := endpoint.New(m, endpoint.Options{MaxInFlight: 1, Timeout: 300 * time.Millisecond})
+	entered, release := make(chan struct{}, 1), make(chan struct{})
+	restore := endpoint.SetAcquiredHook(func() { entered <- struct{}{}; <-release })
+	defer restore()
+	h := endpoint.New(m, endpoint.Options{MaxInFlight: 1, Timeout: 100 * time.Millisecond, Log: quiet})
 	srv := httptest.NewServer(h)
 	defer srv.Close()
-	body := &blockedBody{release: make(chan struct{})}
+	body := `{"rows": [` + goodRow + `]}`
 	first := make(chan int, 1)
 	go func() {
-		req, _ := http.NewRequest("POST", srv.URL+"/classify", body)
-		resp, err := http.DefaultClient.Do(req)
+		resp, err := http.Post(srv.URL+"/classify", "application/json", strings.NewReader(body))
 		if err != nil {
 			first <- -1
 			return
@@ -207,25 +215,12 @@ func TestOverloadAndTimeout(t *testing.T) {
 		resp.Body.Close()
 		first <- resp.StatusCode
 	}()
-	// Wait until the first request holds the only slot.
-	deadline := time.Now().Add(5 * time.Second)
-	for {
-		resp, err := http.Get(srv.URL + "/health")
-		if err != nil {
-			t.Fatal(err)
-		}
-		var hs map[string]any
-		json.NewDecoder(resp.Body).Decode(&hs)
-		resp.Body.Close()
-		if hs["in_flight"] == 1.0 {
-			break
-		}
-		if time.Now().After(deadline) {
-			t.Fatal("the first request never started")
-		}
-		time.Sleep(5 * time.Millisecond)
+	select {
+	case <-entered:
+	case <-time.After(10 * time.Second):
+		t.Fatal("the first request never took its place")
 	}
-	resp, err := http.Post(srv.URL+"/classify", "application/json", strings.NewReader(`{"rows": [`+goodRow+`]}`))
+	resp, err := http.Post(srv.URL+"/classify", "application/json", strings.NewReader(body))
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -233,15 +228,16 @@ func TestOverloadAndTimeout(t *testing.T) {
 	if resp.StatusCode != 503 || resp.Header.Get("Retry-After") == "" {
 		t.Errorf("second request: %d; want 503 with Retry-After", resp.StatusCode)
 	}
+	time.Sleep(200 * time.Millisecond) // past the first one's Timeout
+	close(release)
 	select {
 	case code := <-first:
 		if code != 503 {
-			t.Errorf("stalled request: %d; want 503 after its timeout", code)
+			t.Errorf("held request: %d; want 503 after its timeout", code)
 		}
 	case <-time.After(10 * time.Second):
-		t.Error("the stalled request was not timed out")
+		t.Error("the held request never finished")
 	}
-	close(body.release)
 }
 
 // TestReloadBroken: a broken model file is refused, logged with the
@@ -337,12 +333,12 @@ func TestLoadWithSwap(t *testing.T) {
 				derr := json.NewDecoder(resp.Body).Decode(&r)
 				resp.Body.Close()
 				lat[i] = time.Since(t0)
-				if resp.StatusCode != 200 || derr != nil || len(r.Predictions) != 4 {
+				if resp.StatusCode != 200 || derr != nil || len(r.Answers) != 4 {
 					failed.Add(1)
 					t.Errorf("request %d: status %d, %v", i, resp.StatusCode, derr)
 					continue
 				}
-				for _, p := range r.Predictions {
+				for _, p := range r.Answers {
 					if !slices.Equal(p.Scores, want[r.ModelVersion]) {
 						failed.Add(1)
 						t.Errorf("request %d: scores %v are not model %s's %v", i, p.Scores, r.ModelVersion, want[r.ModelVersion])
@@ -380,7 +376,7 @@ func TestLoadWithSwap(t *testing.T) {
 // BenchmarkHTTP is requests per second on loopback, one row per request,
 // with as many concurrent clients as GOMAXPROCS.
 func BenchmarkHTTP(b *testing.B) {
-	h := endpoint.New(load(b, models(b)[0]), endpoint.Options{})
+	h := endpoint.New(load(b, models(b)[0]), endpoint.Options{Log: quiet})
 	srv := httptest.NewServer(h)
 	defer srv.Close()
 	body := `{"rows": [` + goodRow + `]}`
