@@ -45,5 +45,5 @@ func Example() {
 	// [temp_rise site=east site=north-yard]
 	// row 2: [0 1 0]
 	// request: [1 0 1]
-	// prep: field "site": value "west-yard": category not seen in training; check the spelling, refit with training rows that hold this category, or fit with Options.UnknownAsZeros to encode it as zeros
+	// prep: field "site": value "west-yard": category not seen in training; check the spelling, or retrain with rows that hold this category or with unseen categories encoded as zeros
 }

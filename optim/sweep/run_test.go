@@ -23,9 +23,9 @@ func fake(_ context.Context, p Point) (Result, error) {
 	}
 	r := NaNResult(p)
 	r.ValAccuracy = float64((k*7)%4) / 4
-	r.ValScore = r.ValAccuracy // four values: many ties
-	r.MarginMin = float64((k*5)%3) / 10  // ties within ties
-	r.Bound = float64((k*3)%5) + 0.5     // and ties within those
+	r.ValScore = r.ValAccuracy          // four values: many ties
+	r.MarginMin = float64((k*5)%3) / 10 // ties within ties
+	r.Bound = float64((k*3)%5) + 0.5    // and ties within those
 	r.MarginMean, r.TrainAccuracy, r.Rho = 2*r.MarginMin, 1, float64(k)
 	r.Status = "finished"
 	return r, nil
