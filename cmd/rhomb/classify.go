@@ -17,7 +17,11 @@ const classifySummary = `Label rows with a saved model. Reads a CSV file with a 
 input columns, in any order, others ignored), applies the model's saved
 preprocessing, and writes one output row per input row, in the same order:
 the class, then the network's score for each class (for two classes, one
-score, headed by the class a positive score means). -carry copies chosen
+score, headed by the class a positive score means). When the model holds
+them, more columns follow: with -probabilities each class's calibrated
+probability ("p:CLASS"), the prediction set ("set", classes joined by |)
+and the answer ("answer": the class, or "no answer" where the model
+abstains; docs/model-file.md, "Decision"). -carry copies chosen
 input columns (an id, a timestamp) to the front of each output row, so the
 results can be joined back without relying on row order. Streams: any
 file size.`
@@ -33,6 +37,7 @@ func runClassify(e *env, args []string) error {
 	blank := fs.Bool("blank-missing", false, "write an empty output row for a row with a missing cell, instead of failing, when the model does not impute")
 	carry := fs.String("carry", "", "comma-separated input `columns` (an id, a timestamp) to copy to the output, first, so results can be joined back")
 	sep := fs.String("sep", ",", "field `separator` of the CSV input: one character, or \"tab\"")
+	probs := fs.Bool("probabilities", false, "also write each class's calibrated probability (the model must hold a calibration; rhomb train fits one)")
 	if err := parse(fs, args); err != nil {
 		return err
 	}
@@ -47,6 +52,9 @@ func runClassify(e *env, args []string) error {
 	if err != nil {
 		return err
 	}
+	if *probs && (m.Decision() == nil || m.Decision().Calibration == nil) {
+		return usageError{fmt.Errorf("classify: -probabilities: %s holds no calibration; retrain it with rhomb train, which fits one on the validation rows", *model)}
+	}
 	var w io.Writer = e.stdout
 	var f *atomicfile.File
 	if *out != "-" {
@@ -59,7 +67,7 @@ func runClassify(e *env, args []string) error {
 		w = f
 	}
 	cw := csv.NewWriter(w)
-	if err := classifyRows(e, m, *in, splitList(*carry), comma, cw, *blank); err != nil {
+	if err := classifyRows(e, m, *in, splitList(*carry), comma, cw, *blank, *probs); err != nil {
 		return err
 	}
 	cw.Flush()
@@ -125,26 +133,78 @@ func formatScore(m *classify.Model, v float64) string {
 	return strconv.FormatFloat(v, 'g', -1, 64)
 }
 
-func classifyRows(e *env, m *classify.Model, in string, carry []string, sep rune, cw *csv.Writer, blank bool) error {
+func classifyRows(e *env, m *classify.Model, in string, carry []string, sep rune, cw *csv.Writer, blank, probs bool) error {
+	d := m.Decision()
+	abstain := d != nil && d.Abstain != nil
+	sets := d != nil && d.Sets != nil
 	head := append(append(append([]string(nil), carry...), "class"), scoreHeader(m)...)
+	if probs {
+		for _, c := range classNames(m) {
+			head = append(head, "p:"+c)
+		}
+	}
+	if sets {
+		head = append(head, "set")
+	}
+	if abstain {
+		head = append(head, "answer")
+	}
 	if err := cw.Write(head); err != nil {
 		return err
 	}
 	rec := make([]string, len(head))
-	k := len(carry)
+	names := classNames(m)
 	return forEachRow(e, m, in, "", carry, sep, blank, func(row csvRow) error {
 		clear(rec)
 		copy(rec, row.carried)
 		if !row.answered {
 			return cw.Write(rec)
 		}
-		rec[k] = row.answer.Label
-		if rec[k] == "" {
-			rec[k] = strconv.Itoa(row.answer.Class)
+		a := row.answer
+		k := len(carry)
+		rec[k] = names[a.Class]
+		k++
+		for _, v := range a.Scores {
+			rec[k] = formatScore(m, v)
+			k++
 		}
-		for j, v := range row.answer.Scores {
-			rec[k+1+j] = formatScore(m, v)
+		if probs {
+			for _, p := range a.Probabilities {
+				rec[k] = strconv.FormatFloat(p, 'g', 6, 64)
+				k++
+			}
+		}
+		if sets {
+			var b strings.Builder
+			for i, j := range a.Set {
+				if i > 0 {
+					b.WriteByte('|')
+				}
+				b.WriteString(names[j])
+			}
+			rec[k] = b.String()
+			k++
+		}
+		if abstain {
+			rec[k] = names[a.Class]
+			if a.Abstained {
+				rec[k] = "no answer"
+			}
 		}
 		return cw.Write(rec)
 	})
+}
+
+// classNames names the model's classes, by index when the file names
+// none.
+func classNames(m *classify.Model) []string {
+	if c := m.Classes(); c != nil {
+		return c
+	}
+	n := max(m.Outputs(), 2)
+	out := make([]string, n)
+	for i := range out {
+		out[i] = strconv.Itoa(i)
+	}
+	return out
 }

@@ -9,7 +9,10 @@
 //
 // The input is CSV with a header naming the model's input fields, in any
 // order; other columns (such as the label) are ignored. Each output line
-// is the input line's class, then its scores, written with
+// is the input line's class, then its scores, and, when the model file
+// holds them, its calibrated probabilities, its prediction set (classes
+// joined by |) and its answer (the class, or "no answer" where the model
+// abstains). Scores are written with
 // strconv.FormatFloat(v, 'g', -1, 64): the shortest decimal that reads
 // back to the same float64, so two builds can be compared bit for bit
 // (.ci/edge-check runs the linux/arm64 build under qemu and compares it
@@ -126,6 +129,34 @@ func run(model []byte, source string, r io.Reader, w io.Writer) error {
 		for _, s := range a.Scores {
 			line = append(line, ',')
 			line = strconv.AppendFloat(line, s, 'g', -1, 64)
+		}
+		// What the model file's decision adds: the calibrated
+		// probabilities, the prediction set, and "no answer" where the
+		// model abstains.
+		for _, p := range a.Probabilities {
+			line = append(line, ',')
+			line = strconv.AppendFloat(line, p, 'g', 6, 64)
+		}
+		if a.Set != nil {
+			line = append(line, ',')
+			for i, j := range a.Set {
+				if i > 0 {
+					line = append(line, '|')
+				}
+				if c := m.Classes(); c != nil {
+					line = append(line, c[j]...)
+				} else {
+					line = strconv.AppendInt(line, int64(j), 10)
+				}
+			}
+		}
+		if d := m.Decision(); d != nil && d.Abstain != nil {
+			line = append(line, ',')
+			if a.Abstained {
+				line = append(line, "no answer"...)
+			} else {
+				line = append(line, a.Label...)
+			}
 		}
 		line = append(line, '\n')
 		if _, err := w.Write(line); err != nil {

@@ -22,7 +22,10 @@
 // would, a JSON number, or null for missing; the model's own pipeline
 // encodes it, as in training. Scores are the network's outputs in class
 // order (one score for a ±1 binary model: positive means the second
-// class). The model version is the start of the model file's SHA-256, so
+// class). When the model file holds them (docs/model-file.md, "Decision"),
+// each answer also has "probabilities" (calibrated, in class order), "set"
+// (the prediction set's class names) and "no_answer": true where the model
+// abstains. The model version is the start of the model file's SHA-256, so
 // a client can tell which model answered.
 //
 // A row field that is none of the model's inputs is ignored, as the

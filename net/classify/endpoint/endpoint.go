@@ -11,6 +11,7 @@ import (
 	"path/filepath"
 	"runtime"
 	"slices"
+	"strconv"
 	"strings"
 	"sync"
 	"sync/atomic"
@@ -248,11 +249,19 @@ type Response struct {
 // missing (absent, null or a missing-value marker) and that the model's
 // preprocessing filled in with its training value; it is absent when
 // none was.
+//
+// When the model file holds them (docs/model-file.md, "Decision"),
+// Probabilities are the calibrated class probabilities in class order,
+// Set is the prediction set (class names), and NoAnswer is true where the
+// model abstains (Class then still says what the answer would be).
 type Answer struct {
-	Class        string    `json:"class,omitempty"`
-	ClassIndex   int       `json:"class_index"`
-	Scores       []float64 `json:"scores"`
-	FilledFields []string  `json:"filled_fields,omitempty"`
+	Class         string    `json:"class,omitempty"`
+	ClassIndex    int       `json:"class_index"`
+	Scores        []float64 `json:"scores"`
+	Probabilities []float64 `json:"probabilities,omitempty"`
+	Set           []string  `json:"set,omitempty"`
+	NoAnswer      bool      `json:"no_answer,omitempty"`
+	FilledFields  []string  `json:"filled_fields,omitempty"`
 }
 
 // Error is the body of every error response.
@@ -447,7 +456,15 @@ func (h *Handler) classify(w *tracked, r *http.Request) {
 			h.rowFail(w, i, err)
 			return
 		}
-		resp.Answers[i] = Answer{Class: a.Label, ClassIndex: a.Class, Scores: append([]float64(nil), a.Scores...), FilledFields: filled}
+		resp.Answers[i] = Answer{Class: a.Label, ClassIndex: a.Class, Scores: append([]float64(nil), a.Scores...), FilledFields: filled,
+			Probabilities: append([]float64(nil), a.Probabilities...), NoAnswer: a.Abstained}
+		for _, j := range a.Set {
+			name := strconv.Itoa(j)
+			if c := m.Classes(); c != nil {
+				name = c[j]
+			}
+			resp.Answers[i].Set = append(resp.Answers[i].Set, name)
+		}
 		if observe {
 			w.margins = append(w.margins, ScoreMargin(a.Scores))
 		}
