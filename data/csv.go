@@ -1,7 +1,6 @@
 package data
 
 import (
-	"bufio"
 	"encoding/csv"
 	"errors"
 	"fmt"
@@ -89,6 +88,109 @@ type CSVOptions struct {
 	// Comma separates fields; zero: ','. It cannot be a quote, a line
 	// break, or an invalid rune.
 	Comma rune
+	// MaxFields is the most fields a record (the header or a row) may
+	// hold, and MaxRecordBytes the most bytes, line breaks inside quotes
+	// included; zero: DefaultMaxFields and DefaultMaxRecordBytes. A record
+	// beyond either is a *ParseError wrapping ErrTooLarge, found while the
+	// record is read, so that a file that is no table (a line of ten
+	// million separators, a quote never closed) costs memory by the limit,
+	// not by its size.
+	MaxFields, MaxRecordBytes int
+	// Advise words the settings that error messages advise changing, for
+	// a program whose users set them in their own way (a command line's
+	// flags): it gets the change and returns how the user asks for it, or
+	// "" when the user cannot (that advice is then left out). nil: the
+	// messages name the fields of CSVOptions, as a Go caller sets them.
+	Advise func(Fix) string
+}
+
+// Fix is a change of the reader's settings that an error message advises
+// or refers to, for CSVOptions.Advise to word.
+type Fix struct {
+	// Setting is the CSVOptions field: "Label", "Kinds", "Ignore",
+	// "Missing", "OnMissing", "OnMissingIn", "MaxFields" or
+	// "MaxRecordBytes".
+	Setting string
+	// Column is the column the change is for, if for one: a Kinds,
+	// Ignore or OnMissingIn entry.
+	Column string
+	// Value is the value set, if the message names one: a Kind for Kinds
+	// ("Numeric", "Categorical"), a cell value for Missing, a
+	// MissingPolicy for OnMissing and OnMissingIn ("MissingDrop").
+	Value string
+}
+
+// words is how o's messages name settings.
+func (o *CSVOptions) words() func(Fix) string {
+	if o.Advise != nil {
+		return o.Advise
+	}
+	return goWords
+}
+
+// reader returns an encoding/csv reader of r through the checks of the
+// raw input.
+func (o *CSVOptions) reader(r io.Reader, comma rune) *csv.Reader {
+	maxFields, maxBytes := o.MaxFields, o.MaxRecordBytes
+	if maxFields <= 0 {
+		maxFields = DefaultMaxFields
+	}
+	if maxBytes <= 0 {
+		maxBytes = DefaultMaxRecordBytes
+	}
+	cr := csv.NewReader(newScanner(r, comma, maxFields, maxBytes, o.words()))
+	cr.Comma = comma
+	return cr
+}
+
+// NewCSVReader returns an encoding/csv reader of r that checks the input
+// as ReadCSV does: UTF-8 text, lines that end in LF or CR LF, records
+// within MaxFields and MaxRecordBytes. It is for a program that reads
+// rows itself, such as a serving path, which must refuse what training
+// refused. It takes Comma (zero: ','), the limits and Advise from o; the
+// caller sets the reader's other fields. A problem in the input comes out
+// of Read as an error that CSVInputError turns into a *ParseError; the
+// reader skips a UTF-8 byte-order mark at the start.
+func NewCSVReader(r io.Reader, o CSVOptions) *csv.Reader {
+	comma := o.Comma
+	if comma == 0 {
+		comma = ','
+	}
+	return o.reader(r, comma)
+}
+
+// CSVInputError returns err as a *ParseError naming source when it is a
+// problem a reader made by NewCSVReader found in the input, or a syntax
+// error of encoding/csv; header, the names read from the header line
+// (nil before it is read), names the field. Other errors come back as
+// they are.
+func CSVInputError(err error, source string, header []string) error {
+	var ie *inputError
+	var pe *csv.ParseError
+	if !errors.As(err, &ie) && !errors.As(err, &pe) {
+		return err
+	}
+	names := make([]string, len(header))
+	for i, h := range header {
+		names[i] = strings.TrimSpace(h)
+	}
+	rd := &csvRead{source: source, names: names, words: goWords}
+	return rd.readErr(err)
+}
+
+// goWords words a Fix as a Go caller sets it: CSVOptions' fields.
+func goWords(f Fix) string {
+	switch {
+	case f.Setting == "Ignore" && f.Column != "":
+		return fmt.Sprintf("CSVOptions.Ignore (listing %q)", f.Column)
+	case f.Setting == "Missing":
+		return "CSVOptions.Missing"
+	case f.Column != "" && f.Value != "":
+		return fmt.Sprintf("CSVOptions.%s[%q] = %s", f.Setting, f.Column, f.Value)
+	case f.Value != "":
+		return fmt.Sprintf("CSVOptions.%s = %s", f.Setting, f.Value)
+	}
+	return "CSVOptions." + f.Setting
 }
 
 // ReadCSV reads a labelled table from CSV (RFC 4180, as encoding/csv reads
@@ -104,9 +206,19 @@ type CSVOptions struct {
 // them the same way. A UTF-8 byte-order mark before the header is skipped.
 // Empty lines are skipped.
 //
+// The input must be UTF-8 (RFC 3629): the first byte that is not is a
+// *ParseError wrapping ErrNotUTF8 with its line, column and field, before
+// any text of another encoding can reach a category name or a label, and
+// from there a model file. Lines end in LF or CR LF, as encoding/csv reads
+// them; a file whose first line ends in a CR alone (classic Mac OS) is
+// ErrLineEnds, since encoding/csv would read it as one long line. Both say
+// how to convert the file. A record beyond MaxFields or MaxRecordBytes is
+// ErrTooLarge.
+//
 // Problems in the data are returned as a *ParseError whose Err wraps one
 // of ErrEmpty, ErrDuplicateHeader, ErrNoLabel, ErrRagged, ErrMissing,
-// ErrNotNumber, ErrInfinite or ErrOneClass (test with errors.Is), or wraps
+// ErrNotNumber, ErrInfinite, ErrOneClass, ErrNotUTF8, ErrLineEnds or
+// ErrTooLarge (test with errors.Is), or wraps
 // the *csv.ParseError of a syntax error (test with errors.As). A file
 // whose rows are all dropped is ErrEmpty; a kept feature column with no
 // values in the kept rows is ErrMissing, since nothing could impute it.
@@ -125,19 +237,11 @@ func ReadCSV(r io.Reader, source string, o CSVOptions) (*Table, error) {
 	if markers == nil {
 		markers = prep.DefaultMissing
 	}
-
-	br := bufio.NewReader(r)
-	if b, err := br.Peek(3); err == nil && string(b) == "\uFEFF" {
-		br.Discard(3)
-	} else if err != nil && err != io.EOF && err != bufio.ErrBufferFull {
-		return nil, fmt.Errorf("data: reading %s: %w", source, err)
-	}
-	cr := csv.NewReader(br)
-	cr.Comma = comma
+	cr := o.reader(r, comma)
 	cr.FieldsPerRecord = -1 // ragged rows are reported here, with advice
 	cr.ReuseRecord = true   // values are copied out; records are not kept
 
-	rd := &csvRead{source: source, cr: cr}
+	rd := &csvRead{source: source, cr: cr, words: o.words()}
 	header, err := cr.Read()
 	if err == io.EOF {
 		return nil, rd.fail(0, 0, "", fmt.Errorf("%w: the file holds no header and no rows; give it a header line of column names and at least one row", ErrEmpty))
@@ -198,7 +302,7 @@ func ReadCSV(r io.Reader, source string, o CSVOptions) (*Table, error) {
 		return nil, rd.fail(0, 0, "", fmt.Errorf("%w: the file has a header but no rows; add rows below the header", ErrEmpty))
 	}
 	if rows == 0 {
-		return nil, rd.fail(0, 0, "", fmt.Errorf("%w: all %d rows hold missing values and were dropped; keep them with MissingKeep to impute later, or fix the file", ErrEmpty, dropped))
+		return nil, rd.fail(0, 0, "", fmt.Errorf("%w: all %d rows hold missing values and were dropped; %s", ErrEmpty, dropped, rd.either("keep them to impute later with %s, or fix the file", "fix the file", Fix{Setting: "OnMissing", Value: "MissingKeep"})))
 	}
 	t := &Table{Source: source, Label: label.name, Lines: lines, Rows: rows, Dropped: dropped}
 	for _, c := range cols {
@@ -206,7 +310,7 @@ func ReadCSV(r io.Reader, source string, o CSVOptions) (*Table, error) {
 			continue
 		}
 		if c.values == 0 {
-			return nil, rd.fail(0, 0, c.name, fmt.Errorf("%w: the column holds no values in the %d rows kept; leave it out with CSVOptions.Ignore", ErrMissing, rows))
+			return nil, rd.fail(0, 0, c.name, fmt.Errorf("%w: the column holds no values in the %d rows kept; %s", ErrMissing, rows, rd.either("leave it out with %s", "leave it out", Fix{Setting: "Ignore", Column: c.name})))
 		}
 		col := Column{Name: c.name, Kind: c.kind, Missing: c.miss}
 		if c.kind == Numeric {
@@ -226,7 +330,16 @@ func ReadCSV(r io.Reader, source string, o CSVOptions) (*Table, error) {
 	if rows == 1 {
 		all = "the only row is"
 	}
-	return nil, rd.fail(0, 0, label.name, fmt.Errorf("%w: %s %q, and a classifier needs rows of at least two classes; check that CSVOptions.Label names the label column", ErrOneClass, all, t.Labels[0]))
+	return nil, rd.fail(0, 0, label.name, fmt.Errorf("%w: %s %q, and a classifier needs rows of at least two classes; %s", ErrOneClass, all, t.Labels[0], rd.either("check that %s names the label column", "check that the label column is the right one", Fix{Setting: "Label"})))
+}
+
+// either words advice that names a setting (format holds one %s), or
+// gives plain, when the caller has no such setting.
+func (rd *csvRead) either(format, plain string, f Fix) string {
+	if n := rd.words(f); n != "" {
+		return fmt.Sprintf(format, n)
+	}
+	return plain
 }
 
 // check reports options that no file could satisfy.
@@ -249,7 +362,15 @@ func (o *CSVOptions) check(comma rune) error {
 	}
 	for _, name := range o.Ignore {
 		if o.Label != "" && strings.TrimSpace(name) == strings.TrimSpace(o.Label) {
-			return fmt.Errorf("data: CSVOptions.Ignore names the label column %q; a table needs its labels", name)
+			words := o.Advise
+			if words == nil {
+				words = goWords
+			}
+			what := words(Fix{Setting: "Ignore"})
+			if what == "" {
+				what = "the list of columns to leave out"
+			}
+			return fmt.Errorf("data: %s lists the label column %q; a table needs its labels", what, name)
 		}
 	}
 	return nil
@@ -320,6 +441,7 @@ type csvRead struct {
 	source string
 	cr     *csv.Reader
 	names  []string
+	words  func(Fix) string
 }
 
 func (rd *csvRead) fail(line, col int, field string, err error) *ParseError {
@@ -346,11 +468,15 @@ func (rd *csvRead) header(header []string, o CSVOptions) (cols []*csvCol, label 
 		rd.names[i] = name
 	}
 	unknown := func(name, where string) error {
-		return rd.fail(headerLine, 0, name, fmt.Errorf("%w (named in CSVOptions.%s); the header has %s", ErrNoLabel, where, rd.list()))
+		named := ""
+		if w := rd.words(Fix{Setting: where}); w != "" {
+			named = " (named in " + w + ")"
+		}
+		return rd.fail(headerLine, 0, name, fmt.Errorf("%w%s; the header has %s", ErrNoLabel, named, rd.list()))
 	}
 	labelName := strings.TrimSpace(o.Label)
 	if labelName == "" {
-		return nil, nil, rd.fail(headerLine, 0, "", fmt.Errorf("%w: CSVOptions.Label is empty; set it to the label column, one of %s", ErrNoLabel, rd.list()))
+		return nil, nil, rd.fail(headerLine, 0, "", fmt.Errorf("%w: no label column is named; %s", ErrNoLabel, rd.either("set %s to the label column, one of "+rd.list(), "name the label column, one of "+rd.list(), Fix{Setting: "Label"})))
 	}
 	if _, ok := at[labelName]; !ok {
 		return nil, nil, unknown(labelName, "Label")
@@ -444,15 +570,28 @@ func (rd *csvRead) parse(c *csvCol, v string) error {
 		return nil
 	}
 	x, err := prep.ParseNumber(v)
+	value := strings.TrimSpace(v)
 	switch {
 	case errors.Is(err, ErrInfinite):
-		return rd.failAt(c.field, c.name, fmt.Errorf("%w %q (written as Inf or beyond ±%.4g); replace it, or list it in CSVOptions.Missing to read it as missing", ErrInfinite, strings.TrimSpace(v), math.MaxFloat64))
+		return rd.failAt(c.field, c.name, fmt.Errorf("%w %q (written as Inf or beyond ±%.4g); %s", ErrInfinite, value, math.MaxFloat64,
+			rd.either("replace it, or list it in %s to read it as missing", "replace it", Fix{Setting: "Missing", Value: value})))
 	case err != nil:
 		why := fmt.Sprintf("the column was read as numeric from its first value %q on line %d", c.firstValue, c.firstLine)
 		if c.declared {
-			why = "the column is declared Numeric in CSVOptions.Kinds"
+			why = rd.either("the column is declared numeric by %s", "the column is declared numeric", Fix{Setting: "Kinds", Column: c.name, Value: "Numeric"})
 		}
-		return rd.failAt(c.field, c.name, fmt.Errorf("%w: %q; %s. If the column holds categories, set CSVOptions.Kinds[%q] = Categorical; if %q marks a missing value, add it to CSVOptions.Missing", ErrNotNumber, strings.TrimSpace(v), why, c.name, strings.TrimSpace(v)))
+		var advice []string
+		if w := rd.words(Fix{Setting: "Kinds", Column: c.name, Value: "Categorical"}); w != "" {
+			advice = append(advice, "if the column holds categories, set "+w)
+		}
+		if w := rd.words(Fix{Setting: "Missing", Value: value}); w != "" {
+			advice = append(advice, fmt.Sprintf("if %q marks a missing value, add it to %s", value, w))
+		}
+		if len(advice) == 0 {
+			advice = append(advice, "fix the value")
+		}
+		advice[0] = strings.ToUpper(advice[0][:1]) + advice[0][1:]
+		return rd.failAt(c.field, c.name, fmt.Errorf("%w: %q; %s. %s", ErrNotNumber, value, why, strings.Join(advice, "; ")))
 	}
 	c.rowNum = x
 	return nil
@@ -464,12 +603,42 @@ func (rd *csvRead) missing(c, label *csvCol, v string) error {
 		what = "(empty cell)"
 	}
 	if c == label {
-		return rd.failAt(c.field, c.name, fmt.Errorf("%w %s in the label column; every kept row needs its label: fix the row, or drop such rows with CSVOptions.OnMissingIn[%q] = MissingDrop", ErrMissing, what, c.name))
+		return rd.failAt(c.field, c.name, fmt.Errorf("%w %s in the label column; every kept row needs its label: %s", ErrMissing, what,
+			rd.either("fix the row, or drop such rows with %s", "fix the row", Fix{Setting: "OnMissingIn", Column: c.name, Value: "MissingDrop"})))
 	}
+	setting, column := "OnMissing", ""
+	because := ""
 	if c.ownRule {
-		return rd.failAt(c.field, c.name, fmt.Errorf("%w %s, and CSVOptions.OnMissingIn[%q] is MissingFail; drop or impute missing values: set it to MissingDrop to drop such rows, or to MissingKeep to keep them for the pipeline to impute", ErrMissing, what, c.name))
+		setting, column = "OnMissingIn", c.name
+		if w := rd.words(Fix{Setting: setting, Column: column, Value: "MissingFail"}); w != "" {
+			because = ", refused by " + w
+		}
 	}
-	return rd.failAt(c.field, c.name, fmt.Errorf("%w %s; drop or impute missing values: set CSVOptions.OnMissing to MissingDrop to drop such rows, or to MissingKeep to keep them for the pipeline to impute (OnMissingIn sets this for one column)", ErrMissing, what))
+	return rd.failAt(c.field, c.name, fmt.Errorf("%w %s%s; drop or impute missing values: %s", ErrMissing, what, because, rd.dropOrKeep(setting, column)))
+}
+
+// dropOrKeep advises dropping the rows with missing values or keeping
+// them for imputation.
+func (rd *csvRead) dropOrKeep(setting, column string) string {
+	drop := rd.words(Fix{Setting: setting, Column: column, Value: "MissingDrop"})
+	keep := rd.words(Fix{Setting: setting, Column: column, Value: "MissingKeep"})
+	var s string
+	switch {
+	case drop != "" && keep != "":
+		s = fmt.Sprintf("drop such rows with %s, or keep them for the pipeline to impute with %s", drop, keep)
+	case drop != "":
+		s = "drop such rows with " + drop + ", or fill the cells in"
+	case keep != "":
+		s = "keep such rows for the pipeline to impute with " + keep + ", or fill the cells in"
+	default:
+		s = "fill the cells in"
+	}
+	if column == "" {
+		if one := rd.words(Fix{Setting: "OnMissingIn"}); one != "" {
+			s += " (" + one + " sets this for one column)"
+		}
+	}
+	return s
 }
 
 func (rd *csvRead) ragged(rec []string, want int) error {
@@ -480,8 +649,23 @@ func (rd *csvRead) ragged(rec []string, want int) error {
 	return rd.fail(line, 0, "", fmt.Errorf("%w: the row has %d fields, the header %d; add the missing fields (empty if the values are missing)", ErrRagged, len(rec), want))
 }
 
-// readErr wraps a syntax error of encoding/csv, keeping its position.
+// readErr wraps a syntax error of encoding/csv, keeping its position, and
+// turns a problem the scanner found into a *ParseError.
 func (rd *csvRead) readErr(err error) error {
+	var ie *inputError
+	if errors.As(err, &ie) {
+		name, cause := "", ie.err
+		switch {
+		case ie.field < 0:
+		case ie.header:
+			cause = fmt.Errorf("field %d of the header: %w", ie.field+1, ie.err)
+		case ie.field < len(rd.names):
+			name = rd.names[ie.field]
+		default:
+			cause = fmt.Errorf("field %d, beyond the header's %d: %w", ie.field+1, len(rd.names), ie.err)
+		}
+		return rd.fail(ie.line, ie.col, name, cause)
+	}
 	var pe *csv.ParseError
 	if !errors.As(err, &pe) {
 		return fmt.Errorf("data: reading %s: %w", rd.source, err)

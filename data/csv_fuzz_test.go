@@ -8,6 +8,7 @@ import (
 	"strconv"
 	"strings"
 	"testing"
+	"unicode/utf8"
 
 	"github.com/rhomb/rhomb/data"
 	"github.com/rhomb/rhomb/data/prep"
@@ -24,7 +25,9 @@ import (
 //     never a missing marker, lines increase, at least two classes, and
 //     kept plus dropped rows are all the records after the header;
 //   - written back as CSV and read again with the kinds it found, the
-//     table comes back the same, bit for bit.
+//     table comes back the same, bit for bit;
+//   - input that is not UTF-8 is refused, with ErrNotUTF8, and only
+//     such input gets that error.
 func FuzzReadCSV(f *testing.F) {
 	for _, c := range badCases {
 		f.Add(c.in, uint8(0), uint8(c.opt.OnMissing), uint8(0))
@@ -38,6 +41,10 @@ func FuzzReadCSV(f *testing.F) {
 	f.Add("\uFEFF id , size,colour , y \n7, NA ,red,p\n\n8, 2.5 ,\"dark, blue\", q\n9,-3e2,\"red\",p\n10,4,\"two\nlines\",q\n", uint8(3), uint8(2), uint8(0))
 	f.Add("a,note,y\n1,x,p\n,y,q\n2,,q\nNA,z,p\n3,w,q\n", uint8(2), uint8(1), uint8(0))
 	f.Add("y,a\n\"p\",0x1p-2\nq,-0\nq,1e-320\n", uint8(0), uint8(0), uint8(0))
+	f.Add("reading,city,state\n1.5,M\xfcnster,on\n2.5,Berlin,off\n", uint8(2), uint8(0), uint8(0))
+	f.Add("a,b,y\r1,2,p\r3,4,q\r", uint8(2), uint8(0), uint8(0))
+	f.Add("a,y\n\"two\nl\xe9nes\",p\nx,q\n", uint8(1), uint8(0), uint8(0))
+	f.Add("a,y\r\nM\u00fcnster,\"p\r\nq\"\r\n\"x\"\"\",q\r", uint8(1), uint8(0), uint8(0))
 
 	commas := []rune{',', ';', '\t'}
 	f.Fuzz(func(t *testing.T, in string, labelAt, policy, commaAt uint8) {
@@ -58,6 +65,24 @@ func FuzzReadCSV(f *testing.F) {
 		}
 
 		tab, err := data.ReadCSV(strings.NewReader(in), "fuzz.csv", o)
+		// Text that is not UTF-8 (RFC 3629, as package unicode/utf8
+		// decodes it) never gets into a table, and is the only cause of
+		// ErrNotUTF8.
+		if err == nil && !utf8.ValidString(in) {
+			t.Fatalf("accepted input that is not UTF-8: %q", in)
+		}
+		if errors.Is(err, data.ErrNotUTF8) && utf8.ValidString(in) {
+			t.Fatalf("UTF-8 input refused as not UTF-8: %v", err)
+		}
+		// And the position is that of the first byte the standard
+		// library's decoder refuses (after a byte-order mark, which no
+		// column counts).
+		var pe *data.ParseError
+		if errors.Is(err, data.ErrNotUTF8) && errors.As(err, &pe) {
+			if line, col := firstInvalid(strings.TrimPrefix(in, "\uFEFF")); pe.Line != line || pe.Column != col {
+				t.Fatalf("%v: at %d:%d, the first invalid byte is at %d:%d", err, pe.Line, pe.Column, line, col)
+			}
+		}
 		if err != nil {
 			checkCause(t, err)
 			return
@@ -98,6 +123,7 @@ func FuzzReadCSV(f *testing.F) {
 var sentinels = []error{
 	data.ErrEmpty, data.ErrDuplicateHeader, data.ErrNoLabel, data.ErrRagged,
 	data.ErrMissing, data.ErrNotNumber, data.ErrInfinite, data.ErrOneClass,
+	data.ErrNotUTF8, data.ErrLineEnds, data.ErrTooLarge,
 }
 
 func checkCause(t *testing.T, err error) {

@@ -54,7 +54,7 @@ var badCases = []badCase{
 	{name: "no such label", in: "a,y\n1,p\n", opt: data.CSVOptions{Label: "z"},
 		cause: data.ErrNoLabel, line: 1, field: "z", hint: `"a", "y"`},
 	{name: "label not set", in: "a,y\n1,p\n", opt: data.CSVOptions{},
-		cause: data.ErrNoLabel, line: 1, hint: `set it to the label column, one of "a", "y"`},
+		cause: data.ErrNoLabel, line: 1, hint: `set CSVOptions.Label to the label column, one of "a", "y"`},
 	{name: "unknown ignored column", in: "a,y\n1,p\n", opt: data.CSVOptions{Label: "y", Ignore: []string{"q"}},
 		cause: data.ErrNoLabel, line: 1, field: "q", hint: "CSVOptions.Ignore"},
 	{name: "unknown kind column", in: "a,y\n1,p\n", opt: data.CSVOptions{Label: "y", Kinds: map[string]data.Kind{"q": data.Numeric}},
@@ -81,14 +81,14 @@ var badCases = []badCase{
 	// A MissingFail column stops the read even when a MissingDrop column
 	// of the same row would drop it.
 	{name: "fail beats drop", in: "a,b,y\n1,2,p\nNA,NA,q\n", opt: data.CSVOptions{Label: "y", OnMissing: data.MissingDrop, OnMissingIn: map[string]data.MissingPolicy{"b": data.MissingFail}},
-		cause: data.ErrMissing, line: 3, col: 4, field: "b", hint: `OnMissingIn["b"] is MissingFail`},
+		cause: data.ErrMissing, line: 3, col: 4, field: "b", hint: `refused by CSVOptions.OnMissingIn["b"] = MissingFail`},
 	{name: "column with no values", in: "a,b,y\nNA,1,p\n,2,q\n", opt: data.CSVOptions{Label: "y", OnMissing: data.MissingKeep},
 		cause: data.ErrMissing, field: "a", hint: "CSVOptions.Ignore"},
 
 	{name: "not a number", in: "a,y\n1.5,p\n2,q\nabc,r\n", opt: data.CSVOptions{Label: "y"},
 		cause: data.ErrNotNumber, line: 4, col: 1, field: "a", hint: `from its first value "1.5" on line 2. If the column holds categories, set CSVOptions.Kinds["a"] = Categorical`},
 	{name: "not a number, declared", in: "a,y\nx,p\n", opt: data.CSVOptions{Label: "y", Kinds: map[string]data.Kind{"a": data.Numeric}},
-		cause: data.ErrNotNumber, line: 2, col: 1, field: "a", hint: "declared Numeric"},
+		cause: data.ErrNotNumber, line: 2, col: 1, field: "a", hint: `declared numeric by CSVOptions.Kinds["a"] = Numeric`},
 	// Rows that are dropped are checked too.
 	{name: "not a number in a dropped row", in: "a,b,y\n1,2,p\nabc,NA,q\n", opt: data.CSVOptions{Label: "y", OnMissing: data.MissingDrop},
 		cause: data.ErrNotNumber, line: 3, col: 1, field: "a", hint: "Categorical"},

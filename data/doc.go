@@ -5,7 +5,11 @@
 //     label column chosen by name, feature columns typed numeric or
 //     categorical (automatically, or as told), missing values refused,
 //     dropped or kept for imputation, and every problem reported as a
-//     *ParseError with file, line, column and field.
+//     *ParseError with file, line, column and field. The input must be
+//     UTF-8 with lines ending in LF or CR LF, and a record is limited in
+//     fields and bytes, so that a file that is no table is refused early
+//     and cheaply; NewCSVReader gives the same checks to a program that
+//     reads rows itself.
 //   - ReadIDX reads the IDX files of the MNIST family, gzipped or not.
 //   - Stratified and KFold split rows reproducibly from a seed.
 //   - Encode applies a fitted preprocessing pipeline (package data/prep)

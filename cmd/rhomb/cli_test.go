@@ -109,6 +109,7 @@ var helpFlags = map[string][]string{
 	"demo":        {"epochs", "o", "quiet", "metrics"},
 	"sweep":       {"data", "label", "rho0", "decay", "lr", "temp", "seed", "shard", "workers", "o", "model", "heatmap"},
 	"sweep-merge": {"in", "o", "model", "heatmap", "top"},
+	"version":     {"short"},
 }
 
 func TestHelpForEveryCommand(t *testing.T) {

@@ -66,6 +66,22 @@ type config struct {
 	Metric     string  `json:"metric"`
 	Strict     bool    `json:"strict,omitempty"`
 	Search     int     `json:"search,omitempty"`
+	// StepChanges records every change of the step size made on resuming
+	// (-lr or -step-factor given with -resume), oldest first; LR and
+	// StepFactor above are the settings in force now.
+	StepChanges []stepChange `json:"step_changes,omitempty"`
+}
+
+// stepChange is one change of the step size when a run resumed.
+type stepChange struct {
+	// Epoch is the epoch the run resumed after.
+	Epoch int `json:"after_epoch"`
+	// LR and StepFactor are the new settings; the one not given is
+	// omitted.
+	LR         float64 `json:"learning_rate,omitempty"`
+	StepFactor float64 `json:"step_factor,omitempty"`
+	// Was is the base step size η the run had reached when it stopped.
+	Was float64 `json:"was,omitempty"`
 }
 
 // defaultConfig is the command line's defaults: the training procedure's
@@ -82,14 +98,14 @@ func defaultConfig() config {
 
 // bind registers the flags that set c.
 func (c *config) bind(fs *flag.FlagSet) {
-	fs.StringVar(&c.Data, "data", c.Data, "CSV `file` with a header row")
+	fs.StringVar(&c.Data, "data", c.Data, "CSV `file` with a header row, UTF-8; - reads standard input")
 	fs.StringVar(&c.Images, "images", c.Images, "IDX `file` of images (with -labels), instead of -data")
 	fs.StringVar(&c.Labels, "labels", c.Labels, "IDX `file` of labels for -images")
 	fs.StringVar(&c.Label, "label", c.Label, "`name` of the CSV column holding the class")
 	c.Kinds = map[string]string{}
 	fs.Var(mapFlag(c.Kinds), "kind", "force column kinds: `name=numeric|categorical`, comma-separated or repeated")
 	fs.Var((*listFlag)(&c.Skip), "skip", "comma-separated `columns` to leave out")
-	fs.StringVar(&c.Missing, "missing", c.Missing, "what to do with missing cells: `impute|drop|fail` (impute: mean or most frequent level of the training rows; the library's prep.Options zero value refuses them)")
+	fs.StringVar(&c.Missing, "missing", c.Missing, "what to do with missing cells: `impute|drop|fail` (impute: mean or most frequent level of the training rows; fail refuses them)")
 	fs.Var((*listFlag)(&c.Markers), "na", "comma-separated cell `values` that mean missing (default \"\",NA,NaN,null)")
 	fs.BoolVar(&c.UnitNorm, "unit-norm", c.UnitNorm, "scale every input row to unit length after encoding")
 	fs.BoolVar(&c.KeepIDs, "keep-ids", c.KeepIDs, "keep categorical columns whose values are nearly all distinct (identifiers, timestamps, free text), which are refused otherwise")
@@ -145,10 +161,26 @@ func (c *config) check() error {
 		return bad("train: -float %d: want 32 or 64", c.Float)
 	case c.Epochs < 0:
 		return bad("train: -epochs %d: want 0 (the default) or a number of epochs", c.Epochs)
-	case c.LR < 0:
+	case !(c.LR >= 0) || math.IsInf(c.LR, 0):
 		return bad("train: -lr %v: want 0 (measured) or a positive rate", c.LR)
 	case !(c.StepFactor > 0 && c.StepFactor <= 1):
 		return bad("train: -step-factor %v: want a fraction in (0, 1]", c.StepFactor)
+	case !(c.Momentum >= 0 && c.Momentum < 1):
+		return bad("train: -momentum %v: want μ in [0, 1)", c.Momentum)
+	case !(c.Decay >= 0) || math.IsInf(c.Decay, 0):
+		return bad("train: -decay %v: want 0 (none) or a positive λ", c.Decay)
+	case !(c.Temp >= 0) || math.IsInf(c.Temp, 0):
+		return bad("train: -temp %v: want 0 (no noise) or a positive temperature", c.Temp)
+	case !(c.Target >= 0) || math.IsInf(c.Target, 0):
+		return bad("train: -target-loss %v: want 0 (none) or a positive loss", c.Target)
+	case !(c.Rho0 >= 0) || math.IsInf(c.Rho0, 0):
+		return bad("train: -rho0 %v: want 0 (the initialization's own scale) or a positive scale", c.Rho0)
+	case c.Batch < 0:
+		return bad("train: -batch %d: want 0 (the whole training set) or a number of rows", c.Batch)
+	case c.Warmup < 0:
+		return bad("train: -warmup %d: want 0 (none) or a number of epochs", c.Warmup)
+	case c.Patience < -1:
+		return bad("train: -patience %d: want -1 (never stop early), 0 (the default) or a number of epochs", c.Patience)
 	}
 	if _, err := recipe.ParseMetric(c.Metric); err != nil {
 		return bad("train: -metric: %v", err)
@@ -161,6 +193,11 @@ func (c *config) check() error {
 			return bad("train: -kind %s=%s: want numeric or categorical", name, k)
 		}
 	}
+	for _, name := range c.Skip {
+		if c.Label != "" && strings.TrimSpace(name) == strings.TrimSpace(c.Label) {
+			return bad("train: -skip lists the label column %q; the classes come from it: take it out of -skip, or name another column with -label", name)
+		}
+	}
 	return nil
 }
 
@@ -170,7 +207,7 @@ func (c *config) record() json.RawMessage {
 }
 
 func (c *config) csvOptions() data.CSVOptions {
-	o := data.CSVOptions{Label: c.Label, Ignore: c.Skip, Missing: c.Markers, Kinds: map[string]data.Kind{}}
+	o := data.CSVOptions{Label: c.Label, Ignore: c.Skip, Missing: c.Markers, Kinds: map[string]data.Kind{}, Advise: flagWords}
 	for name, k := range c.Kinds {
 		o.Kinds[name] = data.Numeric
 		if k == "categorical" {
@@ -186,6 +223,39 @@ func (c *config) csvOptions() data.CSVOptions {
 	return o
 }
 
+// flagWords words the reader's advice in train's flags, so that its
+// messages name no field of the library's options; a setting the command
+// line has no flag for is left out (the reader then says what to do in
+// plain words).
+func flagWords(f data.Fix) string {
+	policy := map[string]string{"MissingDrop": "drop", "MissingKeep": "impute", "MissingFail": "fail"}
+	switch f.Setting {
+	case "Label":
+		return "-label"
+	case "Kinds":
+		if f.Column == "" {
+			return "-kind"
+		}
+		return "-kind " + f.Column + "=" + strings.ToLower(f.Value)
+	case "Ignore":
+		return strings.TrimSpace("-skip " + f.Column)
+	case "Missing":
+		return "-na"
+	case "OnMissing":
+		if p := policy[f.Value]; p != "" {
+			return "-missing " + p
+		}
+		return "-missing"
+	case "OnMissingIn":
+		// There is no flag for one column; -missing sets every column's,
+		// and is the advice for one column too.
+		if p := policy[f.Value]; p != "" && f.Column != "" {
+			return "-missing " + p
+		}
+	}
+	return ""
+}
+
 // buildNetwork makes the network the settings describe.
 func buildNetwork[T net.Float](c *config, inputs, outputs int) (*net.Network[T], error) {
 	b := net.NewBuilder[T](inputs)
@@ -195,6 +265,15 @@ func buildNetwork[T net.Float](c *config, inputs, outputs int) (*net.Network[T],
 	name, args, err := split(c.Activation)
 	if err != nil {
 		return nil, usageError{fmt.Errorf("train: -act %w", err)}
+	}
+	finite := func(v float64) bool { return !math.IsNaN(v) && !math.IsInf(v, 0) }
+	switch {
+	case name == "smooth" && len(args) == 1 && !(args[0] > 0 && finite(args[0])):
+		return nil, usageError{fmt.Errorf("train: -act %q: the sharpness β must be positive (larger is closer to ReLU)", c.Activation)}
+	case name == "poly" && len(args) == 3 && !(args[0] >= 1 && args[0] <= net.PolyMaxDegree):
+		return nil, usageError{fmt.Errorf("train: -act %q: the degree must be 1 to %d", c.Activation, net.PolyMaxDegree)}
+	case name == "poly" && len(args) == 3 && !(args[1] < args[2] && finite(args[1]) && finite(args[2])):
+		return nil, usageError{fmt.Errorf("train: -act %q: the interval lo:hi must have lo < hi", c.Activation)}
 	}
 	for i, w := range c.Hidden {
 		id := fmt.Sprint(i + 1)
@@ -224,6 +303,9 @@ func buildNetwork[T net.Float](c *config, inputs, outputs int) (*net.Network[T],
 	}
 	if err := n.Init(net.InitSettings{Scheme: scheme, Rho0: c.Rho0, Seed: c.Seed}); err != nil {
 		return nil, usageError{fmt.Errorf("train: -rho0: %w", err)}
+	}
+	if rho := n.Rho(); math.IsInf(rho, 0) || math.IsNaN(rho) {
+		return nil, usageError{fmt.Errorf("train: -rho0 %v is too large: the initial weights overflow; give a scale near 1", c.Rho0)}
 	}
 	return n, nil
 }
@@ -262,6 +344,9 @@ func makeLoss[T net.Float](c *config, outputs int, weights []float64) (loss.Func
 	case name == "square" && len(args) == 0:
 		l = loss.Square[T]{}
 	case name == "rescaled" && len(args) == 2:
+		if !(args[0] >= 0 && args[1] >= 0) || math.IsInf(args[0], 0) || math.IsInf(args[1], 0) {
+			return nil, usageError{fmt.Errorf("train: -loss %q: K and M must be positive (0 means 1)", c.Loss)}
+		}
 		l = loss.Rescaled[T]{K: args[0], M: args[1]}
 	case name == "rescaled" && len(args) == 0:
 		l = loss.Rescaled[T]{}
@@ -351,12 +436,12 @@ func (c *config) plan() (recipe.Plan, error) {
 	case name == "warm-cosine" && len(args) == 0:
 	case name == "constant" && len(args) == 0:
 		p.Schedule = optim.Constant{}
-	case name == "step" && len(args) == 2 && args[0] >= 1:
+	case name == "step" && len(args) == 2 && args[0] >= 1 && args[0] == math.Trunc(args[0]) && args[1] > 0 && args[1] <= 1:
 		p.Schedule = optim.StepDecay{Epochs: int(args[0]), By: args[1]}
-	case name == "cosine" && len(args) == 1:
+	case name == "cosine" && len(args) == 1 && args[0] >= 0 && args[0] <= 1:
 		p.Schedule = optim.Cosine{Floor: args[0]}
 	default:
-		return p, usageError{fmt.Errorf("train: -schedule %q: want warm-cosine, constant, step:EPOCHS:FACTOR or cosine:FLOOR", c.Schedule)}
+		return p, usageError{fmt.Errorf("train: -schedule %q: want warm-cosine, constant, step:EPOCHS:FACTOR (whole epochs, a factor in (0, 1]) or cosine:FLOOR (a fraction in [0, 1])", c.Schedule)}
 	}
 	return p, nil
 }

@@ -6,8 +6,10 @@ import (
 	"errors"
 	"fmt"
 	"io"
+	"os"
 	"sort"
 	"strings"
+	"time"
 
 	"github.com/rhomb/rhomb/data/prep"
 	"github.com/rhomb/rhomb/net"
@@ -16,22 +18,183 @@ import (
 )
 
 const describeSummary = `Show what a model file holds: the network, its scales, the preprocessing
-of every input column, the classes, how it was trained and its figures.`
+of every input column, the classes, how it was trained and its figures.
 
-const describeExample = `  rhomb describe -model pumps.model`
+With -json the description is one JSON object, whose field names stay
+the same from release to release (fields may be added):
+  file, kind ("model" or "checkpoint"), written_by, created (RFC 3339),
+  weights ("float32" or "float64"),
+  network: inputs, outputs, rho (the product of the layers' weight
+    norms), layers: [{name, kind, inputs, outputs, weight_norm} for dense
+    layers; {name, kind} and sharpness or degree, lo, hi, fit for
+    activations],
+  normalization (absent without): scale ("layer", "global" or "unit"),
+    hold ("multiplier" or "projection"), rho: {parameter: value},
+  classes, label, loss,
+  preprocessing (absent without): features, impute, unit_norm,
+    unknown_as_zeros, columns: [{name, kind ("numeric" or "categorical"),
+    mean and scale, or categories}],
+  training (the settings as train recorded them), figures (the final
+  figures as train recorded them),
+  checkpoint (absent in a model): step, epoch, steps_in_epoch.`
+
+const describeExample = `  rhomb describe -model pumps.model
+  rhomb describe -model pumps.model -json | jq .figures`
 
 func runDescribe(e *env, args []string) error {
 	fs := newFlags(e, "describe", describeSummary, describeExample)
 	model := fs.String("model", "", "model or checkpoint `file` (required)")
+	asJSON := fs.Bool("json", false, "print the description as one JSON object (fields listed above)")
 	if err := parse(fs, args); err != nil {
 		return err
 	}
 	if *model == "" {
 		return usageError{errors.New("describe: -model names the model file")}
 	}
+	if fi, err := os.Stat(*model); err == nil && fi.IsDir() {
+		return usageError{fmt.Errorf("describe: -model %s is a directory, not a model file; name a file written by rhomb train -o", *model)}
+	}
+	if *asJSON {
+		return withModel(*model,
+			func(m *modelfile.Model[float32]) error { return describeJSON(e.stdout, *model, "float32", m) },
+			func(m *modelfile.Model[float64]) error { return describeJSON(e.stdout, *model, "float64", m) })
+	}
 	return withModel(*model,
 		func(m *modelfile.Model[float32]) error { return describe(e.stdout, *model, "float32", m) },
 		func(m *modelfile.Model[float64]) error { return describe(e.stdout, *model, "float64", m) })
+}
+
+// The JSON description; see describeSummary for the fields. The names
+// are the tool's own and do not follow the library's types, so that they
+// stay put when those change.
+type (
+	jsonDescription struct {
+		File          string             `json:"file"`
+		Kind          string             `json:"kind"`
+		WrittenBy     string             `json:"written_by"`
+		Created       string             `json:"created"`
+		Weights       string             `json:"weights"`
+		Network       jsonNetwork        `json:"network"`
+		Normalization *jsonNormalization `json:"normalization,omitempty"`
+		Classes       []string           `json:"classes"`
+		Label         string             `json:"label,omitempty"`
+		Loss          string             `json:"loss,omitempty"`
+		Preprocessing *jsonPrep          `json:"preprocessing,omitempty"`
+		Training      json.RawMessage    `json:"training,omitempty"`
+		Figures       map[string]any     `json:"figures,omitempty"`
+		Checkpoint    *jsonCheckpoint    `json:"checkpoint,omitempty"`
+	}
+	jsonNetwork struct {
+		Inputs  int         `json:"inputs"`
+		Outputs int         `json:"outputs"`
+		Rho     float64     `json:"rho"`
+		Layers  []jsonLayer `json:"layers"`
+	}
+	jsonLayer struct {
+		Name       string   `json:"name"`
+		Kind       string   `json:"kind"`
+		Inputs     int      `json:"inputs,omitempty"`
+		Outputs    int      `json:"outputs,omitempty"`
+		WeightNorm *float64 `json:"weight_norm,omitempty"`
+		Sharpness  float64  `json:"sharpness,omitempty"`
+		Degree     int      `json:"degree,omitempty"`
+		Lo         *float64 `json:"lo,omitempty"`
+		Hi         *float64 `json:"hi,omitempty"`
+		Fit        string   `json:"fit,omitempty"`
+	}
+	jsonNormalization struct {
+		Scale string             `json:"scale"`
+		Hold  string             `json:"hold"`
+		Rho   map[string]float64 `json:"rho"`
+	}
+	jsonPrep struct {
+		Features       int          `json:"features"`
+		Impute         bool         `json:"impute"`
+		UnitNorm       bool         `json:"unit_norm"`
+		UnknownAsZeros bool         `json:"unknown_as_zeros"`
+		Columns        []jsonColumn `json:"columns"`
+	}
+	jsonColumn struct {
+		Name       string   `json:"name"`
+		Kind       string   `json:"kind"`
+		Mean       *float64 `json:"mean,omitempty"`
+		Scale      *float64 `json:"scale,omitempty"`
+		Categories []string `json:"categories,omitempty"`
+	}
+	jsonCheckpoint struct {
+		Step         int `json:"step"`
+		Epoch        int `json:"epoch"`
+		StepsInEpoch int `json:"steps_in_epoch"`
+	}
+)
+
+func describeJSON[T net.Float](w io.Writer, path, dtype string, m *modelfile.Model[T]) error {
+	d := jsonDescription{File: path, Kind: "model", WrittenBy: m.Library, Created: m.Created.UTC().Format(time.RFC3339),
+		Weights: dtype, Classes: m.Classes, Label: m.Label, Loss: m.Loss, Training: m.Training, Figures: m.Metrics}
+	if d.Classes == nil {
+		d.Classes = []string{}
+	}
+	if c := m.Checkpoint; c != nil {
+		d.Kind = "checkpoint"
+		d.Checkpoint = &jsonCheckpoint{Step: c.Step, Epoch: c.Epoch, StepsInEpoch: c.InEpoch}
+	}
+	n := m.Network
+	d.Network = jsonNetwork{Inputs: n.In(), Outputs: n.Out(), Rho: n.Rho(), Layers: []jsonLayer{}}
+	spec, _ := n.Spec()
+	for _, s := range spec {
+		l := jsonLayer{Name: s.Name, Kind: s.Kind}
+		switch s.Kind {
+		case "dense", "readout":
+			dn := n.Node(s.Name).(*net.Dense[T])
+			norm := net.FrobeniusNorm(dn.W.Value)
+			l.Inputs, l.Outputs, l.WeightNorm = dn.In(), dn.Out(), &norm
+		case "smooth-relu":
+			l.Sharpness = s.Sharpness
+		case "poly-relu":
+			lo, hi := s.Lo, s.Hi
+			l.Degree, l.Lo, l.Hi, l.Fit = s.Degree, &lo, &hi, s.Fit
+		}
+		d.Network.Layers = append(d.Network.Layers, l)
+	}
+	if wn := m.Normalized; wn != nil {
+		o := wn.Options()
+		jn := &jsonNormalization{Scale: "layer", Hold: "multiplier", Rho: map[string]float64{}}
+		switch {
+		case o.Scale == normalize.Global:
+			jn.Scale = "global"
+		case o.PerUnit:
+			jn.Scale = "unit"
+		}
+		if o.Hold == normalize.Projection {
+			jn.Hold = "projection"
+		}
+		for _, p := range wn.Params() {
+			if strings.HasSuffix(p.Name, "rho") && len(p.Value) == 1 {
+				jn.Rho[p.Name] = float64(p.Value[0])
+			}
+		}
+		d.Normalization = jn
+	}
+	if p := m.Pipeline; p != nil {
+		jp := &jsonPrep{Features: p.Width(), Impute: p.Impute, UnitNorm: p.UnitNorm, UnknownAsZeros: p.UnknownAsZeros, Columns: []jsonColumn{}}
+		for _, s := range p.Steps {
+			c := jsonColumn{Name: s.Name, Kind: "numeric"}
+			if s.Kind == prep.Categorical {
+				c.Kind, c.Categories = "categorical", s.Categories
+			} else {
+				mean, scale := s.Mean, s.Scale
+				c.Mean, c.Scale = &mean, &scale
+			}
+			jp.Columns = append(jp.Columns, c)
+		}
+		d.Preprocessing = jp
+	}
+	b, err := json.MarshalIndent(d, "", "  ")
+	if err != nil {
+		return fmt.Errorf("describe: %s: %v", path, err)
+	}
+	_, err = w.Write(append(b, '\n'))
+	return err
 }
 
 func describe[T net.Float](w io.Writer, path, dtype string, m *modelfile.Model[T]) error {

@@ -297,7 +297,7 @@ func TestResumeErrors(t *testing.T) {
 		absent := filepath.Join(dir, "absent.ckpt")
 		want(t, run(t, nil, "train", "-resume", absent, "-o", out), exitBadModel, absent)
 	})
-	for _, conflict := range [][]string{{"-lr", "0.1"}, {"-data", csv}, {"-seed", "2"}, {"-hidden", "4"}, {"-temp", "0"}} {
+	for _, conflict := range [][]string{{"-momentum", "0.5"}, {"-data", csv}, {"-seed", "2"}, {"-hidden", "4"}, {"-temp", "0"}} {
 		t.Run("conflict "+conflict[0], func(t *testing.T) {
 			args := append([]string{"train", "-resume", ckpt, "-o", out}, conflict...)
 			want(t, run(t, nil, args...), exitUsage, conflict[0]+" cannot change when resuming", ckpt)

@@ -28,9 +28,17 @@ func newFlags(e *env, name, summary, example string) *flag.FlagSet {
 	return fs
 }
 
+// parse parses args. A flag that does not parse is one line with a hint,
+// not the whole help: the flag package would show the usage on any
+// error, so it is shown here, only when asked for (-h).
 func parse(fs *flag.FlagSet, args []string) error {
-	if err := fs.Parse(args); err != nil {
-		if errors.Is(err, flag.ErrHelp) { // the flag package has shown the usage
+	show := fs.Usage
+	fs.Usage = func() {}
+	err := fs.Parse(args)
+	fs.Usage = show
+	if err != nil {
+		if errors.Is(err, flag.ErrHelp) {
+			show()
 			return errHelp
 		}
 		return usageError{fmt.Errorf("%s: %w (rhomb help %s lists the flags)", fs.Name(), err, fs.Name())}

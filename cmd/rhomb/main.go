@@ -7,6 +7,7 @@
 //	rhomb check -model pumps.model -data holdout.csv
 //	rhomb classify -model pumps.model -data new.csv -o labelled.csv
 //	rhomb describe -model pumps.model
+//	rhomb version
 //
 // Run `rhomb help COMMAND` for a command's flags and an example.
 //
@@ -25,6 +26,13 @@ import (
 	"fmt"
 	"io"
 	"os"
+	"runtime"
+	"runtime/debug"
+	"strings"
+
+	"golang.org/x/term"
+
+	"github.com/rhomb/rhomb/internal/version"
 )
 
 // Exit codes; see the package documentation.
@@ -48,8 +56,10 @@ type command struct {
 type env struct {
 	stdout, stderr io.Writer
 	stdin          io.Reader
-	// terminal reports whether stderr is a terminal (progress bars) .
+	// terminal reports whether stderr is a terminal (progress bars);
+	// width, when set, gives its width in columns (nil: 80).
 	terminal bool
+	width    func() int
 }
 
 func commands() []command {
@@ -61,12 +71,80 @@ func commands() []command {
 		{"demo", "train on the embedded demo data (no files needed)", runDemo},
 		{"sweep", "train a grid of ρ0, λ, learning rate, temperature and seed; rank the runs", runSweep},
 		{"sweep-merge", "combine the results of a sweep's shards into one ranking", runSweepMerge},
+		{"version", "print the library version and the build's source revision", runVersion},
 	}
 }
 
 func main() {
-	e := &env{stdout: os.Stdout, stderr: os.Stderr, stdin: os.Stdin, terminal: isTerminal(os.Stderr)}
+	e := &env{stdout: os.Stdout, stderr: os.Stderr, stdin: os.Stdin, terminal: isTerminal(os.Stderr), width: stderrWidth}
 	os.Exit(dispatch(e, os.Args[1:]))
+}
+
+// stderrWidth is the width of the terminal on stderr, asked anew each time
+// so that a resized window is followed; 80 when it cannot be told.
+func stderrWidth() int {
+	if w, _, err := term.GetSize(int(os.Stderr.Fd())); err == nil && w > 0 {
+		return w
+	}
+	return 80
+}
+
+const versionSummary = `Print the version of the rhomb library this binary holds (the version
+model files record as their writer), then, when the build recorded them,
+the version-control revision it was built from, the time of that
+revision, whether the checkout had changes not committed, and the Go
+release and platform.`
+
+const versionExample = `  rhomb version
+  rhomb version -short        # the library version only, for scripts`
+
+func runVersion(e *env, args []string) error {
+	fs := newFlags(e, "version", versionSummary, versionExample)
+	short := fs.Bool("short", false, "print the library version only")
+	if err := parse(fs, args); err != nil {
+		return err
+	}
+	if *short {
+		fmt.Fprintln(e.stdout, version.Version)
+		return nil
+	}
+	fmt.Fprint(e.stdout, versionText(debug.ReadBuildInfo()))
+	return nil
+}
+
+// versionText describes the build from what runtime/debug knows of it.
+func versionText(bi *debug.BuildInfo, ok bool) string {
+	var b strings.Builder
+	fmt.Fprintf(&b, "rhomb %s\n", version.Version)
+	if !ok {
+		b.WriteString("build: not recorded in this binary\n")
+		return b.String()
+	}
+	set := map[string]string{}
+	for _, s := range bi.Settings {
+		set[s.Key] = s.Value
+	}
+	if rev := set["vcs.revision"]; rev != "" {
+		fmt.Fprintf(&b, "revision: %s", rev)
+		if t := set["vcs.time"]; t != "" {
+			fmt.Fprintf(&b, " of %s", t)
+		}
+		if set["vcs.modified"] == "true" {
+			b.WriteString(", with changes not committed")
+		}
+		b.WriteString("\n")
+	} else {
+		b.WriteString("revision: not recorded (built outside a version-control checkout, or with -buildvcs=false)\n")
+	}
+	if v := bi.Main.Version; v != "" && v != "(devel)" {
+		fmt.Fprintf(&b, "module: %s %s\n", bi.Main.Path, v)
+	}
+	goos, goarch := set["GOOS"], set["GOARCH"]
+	if goos == "" {
+		goos, goarch = runtime.GOOS, runtime.GOARCH
+	}
+	fmt.Fprintf(&b, "go: %s %s/%s\n", bi.GoVersion, goos, goarch)
+	return b.String()
 }
 
 func dispatch(e *env, args []string) int {

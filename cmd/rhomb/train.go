@@ -7,13 +7,17 @@ import (
 	"flag"
 	"fmt"
 	"io"
+	"io/fs"
 	"math"
 	"os"
 	"os/signal"
+	"path/filepath"
 	"strings"
 	"syscall"
 
 	"github.com/rhomb/rhomb/data"
+	"github.com/rhomb/rhomb/data/prep"
+	"github.com/rhomb/rhomb/internal/atomicfile"
 	"github.com/rhomb/rhomb/internal/score"
 	"github.com/rhomb/rhomb/net"
 	"github.com/rhomb/rhomb/net/modelfile"
@@ -48,7 +52,9 @@ that can hurt someone.`
 
 const trainExample = `  rhomb train -data readings.csv -label condition -missing impute \
       -hidden 32,32 -epochs 60 -decay 1e-3 -o pumps.model -save-every 10
-  rhomb train -resume pumps.model.ckpt -o pumps.model     # after an interrupt`
+  rhomb train -resume pumps.model.ckpt -o pumps.model     # after an interrupt
+  rhomb train -resume pumps.model.ckpt -o pumps.model -lr 0.002   # after divergence, a smaller step
+  gunzip -c readings.csv.gz | rhomb train -data - -label condition -o pumps.model`
 
 // runOptions are the train flags that are not part of the run's settings:
 // they may differ when a run resumes.
@@ -60,7 +66,14 @@ type runOptions struct {
 	// (defaults: from the data file's name; no notes).
 	report, title, source string
 	notes                 []string
+	// newLR, when positive, is the step size a resumed run goes on with
+	// (-lr given with -resume); rescale, when positive, multiplies it
+	// (-step-factor given with -resume: new factor / old).
+	newLR, rescale float64
 }
+
+// stdinName names standard input in messages, for -data -.
+const stdinName = "standard input"
 
 func runTrain(e *env, args []string) error {
 	c := defaultConfig()
@@ -70,7 +83,7 @@ func runTrain(e *env, args []string) error {
 	fs.StringVar(&o.out, "o", "", "model `file` to write (required)")
 	fs.IntVar(&o.every, "save-every", 0, "write a checkpoint every `N` epochs (one is always written on interrupt)")
 	fs.StringVar(&o.checkpoint, "checkpoint", "", "checkpoint `file` (default: the model file with .ckpt appended)")
-	fs.StringVar(&o.resume, "resume", "", "continue the run saved in this checkpoint `file`, with its settings")
+	fs.StringVar(&o.resume, "resume", "", "continue the run saved in this checkpoint `file`, with its settings (-epochs, and -lr or -step-factor for a smaller step, may be given again)")
 	fs.StringVar(&o.metrics, "metrics", "", "write diagnostics of every epoch as JSON Lines to this `file`")
 	fs.StringVar(&o.report, "report", "", "write a self-contained HTML run report (figures, margins, ρ and ρ*, collapse, bound, cautions) to this `file`")
 	fs.BoolVar(&o.quiet, "quiet", false, "print only the final summary")
@@ -87,35 +100,8 @@ func runTrain(e *env, args []string) error {
 		return usageError{fmt.Errorf("train: -save-every %d: want 0 (never) or a number of epochs", o.every)}
 	}
 	if o.resume != "" {
-		// The checkpoint's settings rule; only the run options and the
-		// number of epochs may be given again.
-		epochs := 0
-		var conflict string
-		fs.Visit(func(f *flag.Flag) {
-			switch f.Name {
-			case "o", "save-every", "checkpoint", "resume", "metrics", "report", "quiet":
-			case "epochs":
-				epochs = c.Epochs
-			default:
-				conflict = f.Name
-			}
-		})
-		if conflict != "" {
-			return usageError{fmt.Errorf("train: -%s cannot change when resuming: the run's settings come from %s", conflict, o.resume)}
-		}
-		m, err := modelfile.Load[float64](o.resume)
-		if err != nil {
-			return modelError{err}
-		}
-		if m.Checkpoint == nil {
-			return modelError{fmt.Errorf("%s is a model, not a checkpoint: there is no run to resume", o.resume)}
-		}
-		c = defaultConfig()
-		if err := json.Unmarshal(m.Training, &c); err != nil {
-			return modelError{fmt.Errorf("%s: training record: %w", o.resume, err)}
-		}
-		if epochs > 0 {
-			c.Epochs = epochs
+		if err := resumeConfig(fs, &c, &o); err != nil {
+			return err
 		}
 	}
 	if err := c.check(); err != nil {
@@ -127,15 +113,200 @@ func runTrain(e *env, args []string) error {
 	return train[float64](e, &c, &o)
 }
 
+// resumeConfig replaces c with the settings of the run in the checkpoint
+// -resume names. Only the run options, -epochs, and -lr or -step-factor
+// (to go on with a smaller step, after divergence) may be given again;
+// a change of step size is recorded in the settings.
+func resumeConfig(fs *flag.FlagSet, c *config, o *runOptions) error {
+	epochs, lr, factor := 0, c.LR, c.StepFactor
+	var lrGiven, factorGiven bool
+	var conflict string
+	fs.Visit(func(f *flag.Flag) {
+		switch f.Name {
+		case "o", "save-every", "checkpoint", "resume", "metrics", "report", "quiet":
+		case "epochs":
+			epochs = c.Epochs
+		case "lr":
+			lrGiven = true
+		case "step-factor":
+			factorGiven = true
+		default:
+			conflict = f.Name
+		}
+	})
+	switch {
+	case conflict != "":
+		return usageError{fmt.Errorf("train: -%s cannot change when resuming: the run's settings come from %s (only -epochs, and -lr or -step-factor, may be given again)", conflict, o.resume)}
+	case lrGiven && factorGiven:
+		return usageError{errors.New("train: give -lr or -step-factor with -resume, not both: -lr sets the step size itself, -step-factor a fraction of the measured stability threshold")}
+	case lrGiven && !(lr > 0 && !math.IsInf(lr, 0)):
+		return usageError{fmt.Errorf("train: -lr %v with -resume: give the positive step size to go on with", lr)}
+	}
+	m, err := modelfile.Load[float64](o.resume)
+	if err != nil {
+		return modelError{err}
+	}
+	if m.Checkpoint == nil {
+		return modelError{fmt.Errorf("%s is a model, not a checkpoint: there is no run to resume", o.resume)}
+	}
+	*c = defaultConfig()
+	if err := json.Unmarshal(m.Training, c); err != nil {
+		return modelError{fmt.Errorf("%s: training record: %w", o.resume, err)}
+	}
+	if epochs > 0 {
+		c.Epochs = epochs
+	}
+	if !lrGiven && !factorGiven {
+		return nil
+	}
+	change := stepChange{Epoch: m.Checkpoint.Epoch}
+	if lrGiven {
+		c.LR, change.LR, o.newLR = lr, lr, lr
+	} else {
+		if c.LR > 0 {
+			return usageError{fmt.Errorf("train: -step-factor scales a measured step size, and the run in %s has the fixed step size -lr %v: give -lr to change it", o.resume, c.LR)}
+		}
+		if !(factor > 0 && factor <= 1) {
+			return usageError{fmt.Errorf("train: -step-factor %v: want a fraction in (0, 1]", factor)}
+		}
+		o.rescale = factor / c.StepFactor
+		c.StepFactor, change.StepFactor = factor, factor
+	}
+	c.StepChanges = append(c.StepChanges, change)
+	return nil
+}
+
+// writable checks, before a run, that path can be written: that it is no
+// directory, and that its directory exists and takes new files (a
+// temporary file is created and removed there, as the save will do).
+func writable(cmd, flagName, path string) error {
+	if fi, err := os.Stat(path); err == nil && fi.IsDir() {
+		return usageError{fmt.Errorf("%s: %s %s is a directory; give a file name (in it, if that is where the file should go)", cmd, flagName, path)}
+	}
+	f, err := atomicfile.Create(path)
+	if err != nil {
+		dir := filepath.Dir(path)
+		why := "cannot be written there"
+		switch {
+		case errors.Is(err, fs.ErrNotExist):
+			why = fmt.Sprintf("the directory %s does not exist", dir)
+		case errors.Is(err, fs.ErrPermission):
+			why = fmt.Sprintf("the directory %s does not let you create files", dir)
+		default:
+			var pe *fs.PathError
+			if errors.As(err, &pe) {
+				why = fmt.Sprintf("a file cannot be created in %s: %v", dir, pe.Err)
+			}
+		}
+		return usageError{fmt.Errorf("%s: %s %s: %s; give a path in a directory you can write to", cmd, flagName, path, why)}
+	}
+	f.Abort()
+	return nil
+}
+
+// writeErr says that writing path failed, in words: the file system's
+// reason without the library's prefixes.
+func writeErr(what, path string, err error) error {
+	var pe *fs.PathError
+	if errors.As(err, &pe) {
+		err = pe.Err
+	}
+	return fmt.Errorf("writing the %s %s failed: %v", what, path, err)
+}
+
+// prepareInput is prepare, reading -data - from standard input.
+func prepareInput[T net.Float](e *env, c *config) (*prepared[T], error) {
+	if c.Data != "-" || c.Images != "" {
+		return prepare[T](c)
+	}
+	t, err := data.ReadCSV(e.stdin, stdinName, c.csvOptions())
+	if err != nil {
+		return nil, dataError{withHint(err)}
+	}
+	// What follows is prepare's own, from the table on.
+	r, err := recipe.Prepare[T](t, recipe.Split{Holdout: c.Holdout, Test: c.Test, Seed: c.Seed, KeepIdentifiers: c.KeepIDs, Prep: prep.Options{
+		Impute: c.Missing == "impute", UnitNorm: c.UnitNorm, UnknownAsZeros: c.NewAsNil, Missing: c.Markers,
+	}})
+	var ide *recipe.IdentifierError
+	if errors.As(err, &ide) {
+		return nil, dataError{fmt.Errorf("%w; on the command line: -skip %s leaves it out, -keep-ids keeps it", err, ide.Column)}
+	}
+	if err != nil {
+		return nil, dataError{err}
+	}
+	return &prepared[T]{table: t, pipeline: r.Pipeline, classes: r.Classes, train: r.Train, val: r.Val, test: r.Test, unseen: r.Unseen}, nil
+}
+
+// divergence reports whether err says the run diverged, and how, in the
+// command line's words.
+func divergence(err error) (bool, string) {
+	var nf *optim.NonFiniteError
+	var dv *recipe.DivergenceError
+	switch {
+	case errors.As(err, &nf):
+		where := ""
+		if nf.Index >= 0 {
+			where = fmt.Sprintf(" (at index %d)", nf.Index)
+		}
+		return true, fmt.Sprintf("step %d, in epoch %d, made the %s %v%s", nf.Step, nf.Epoch+1, nf.What, nf.Value, where)
+	case errors.As(err, &dv):
+		return true, libPrefixes.Replace(dv.What)
+	}
+	return false, ""
+}
+
+// libPrefixes takes the library's package prefixes out of a message it
+// wrote, which the command line passes on.
+var libPrefixes = strings.NewReplacer("recipe: ", "", "optim: ", "")
+
+// resumeHint is the command that resumes from a checkpoint, with the
+// step-size flag to add, if any.
+func resumeHint(c *config, o *runOptions, ckpt, step string) string {
+	s := fmt.Sprintf("rhomb train -resume %s -o %s", ckpt, o.out)
+	if step != "" {
+		s += " " + step
+	}
+	if c.Data == "-" {
+		s += " < DATA.csv   (the same data, on standard input)"
+	}
+	return s
+}
+
+// smallerStep is the flag that resumes a diverged run with a smaller step
+// size: a tenth of the last η tried for a fixed rate; for a measured one,
+// a quarter of the step factor, so that re-measuring cannot raise η back.
+func smallerStep(c *config, rate float64) string {
+	if !(rate > 0) {
+		rate = c.LR
+	}
+	if c.LR > 0 || !(rate > 0) {
+		return fmt.Sprintf("-lr %.3g", rate/10)
+	}
+	return fmt.Sprintf("-step-factor %.3g", c.StepFactor/4)
+}
+
 func train[T net.Float](e *env, c *config, o *runOptions) error {
+	// Every file the run writes is checked before it starts, so that a
+	// wrong path fails now and not after the whole run.
+	outputs := [][2]string{{"-o", o.out}, {"-checkpoint", o.checkpoint}, {"-metrics", o.metrics}, {"-report", o.report}}
+	for _, f := range outputs {
+		if f[1] != "" {
+			if err := writable("train", f[0], f[1]); err != nil {
+				return err
+			}
+		}
+	}
 	if c.Search > 0 {
 		if err := searchable(c, o); err != nil {
 			return err
 		}
 	}
-	p, err := prepare[T](c)
+	p, err := prepareInput[T](e, c)
 	if err != nil {
 		return err
+	}
+	if m, _ := recipe.ParseMetric(c.Metric); m == recipe.AUC && p.train.Outputs != 1 {
+		return usageError{fmt.Errorf("train: -metric auc ranks the scores of a two-class model, and the data has %d classes: use -metric balanced or -metric macro-f1", len(p.classes))}
 	}
 	if c.Search > 0 {
 		return trainSearch(e, c, o, p)
@@ -200,6 +371,24 @@ func train[T net.Float](e *env, c *config, o *runOptions) error {
 		}
 		return m
 	}
+	// last is the run at its last epoch boundary, or its start: the
+	// weights and trainer state a diverged run is saved from.
+	var last struct {
+		params [][]T
+		state  optim.State
+	}
+	snapshot := func() {
+		ps := model.Params()
+		if last.params == nil {
+			for _, p := range ps {
+				last.params = append(last.params, make([]T, len(p.Value)))
+			}
+		}
+		for i, p := range ps {
+			copy(last.params[i], p.Value)
+		}
+		last.state = sess.Trainer().State()
+	}
 	var jsonl *optim.Hooks
 	if o.metrics != "" {
 		f, err := os.Create(o.metrics)
@@ -227,6 +416,7 @@ func train[T net.Float](e *env, c *config, o *runOptions) error {
 			}
 		},
 		Epoch: func(r *recipe.EpochReport) error {
+			snapshot()
 			ei := r.Info
 			rep.epoch(epochLine{epoch: ei.Epoch + 1, epochs: sess.Plan().Epochs, loss: ei.Loss,
 				trainAcc: 1 - float64(ei.Full.Negative)/float64(ei.Full.Rows), valAcc: valAccuracy(p.val, r),
@@ -239,7 +429,7 @@ func train[T net.Float](e *env, c *config, o *runOptions) error {
 			if o.every > 0 && (ei.Epoch+1)%o.every == 0 {
 				st := sess.Trainer().State()
 				if err := modelfile.Save(o.checkpoint, bundle(&st)); err != nil {
-					return err
+					return writeErr("checkpoint", o.checkpoint, err)
 				}
 			}
 			return nil
@@ -272,6 +462,17 @@ func train[T net.Float](e *env, c *config, o *runOptions) error {
 				return modelError{fmt.Errorf("%s: session record: %w", o.resume, err)}
 			}
 			ss.Kept = resumed.Kept
+			if o.newLR > 0 || o.rescale > 0 {
+				// A new step size: the rate, and the cap a rollback set,
+				// follow it, and the run may again lower it on its own.
+				c.StepChanges[len(c.StepChanges)-1].Was = ss.Rate
+				if o.newLR > 0 {
+					ss.Rate, ss.Cap = o.newLR, 0
+				} else {
+					ss.Rate, ss.Cap = ss.Rate*o.rescale, ss.Cap*o.rescale
+				}
+				ss.Rollbacks = 0
+			}
 			err = sess.Restore(ss, *resumed.Checkpoint)
 		}
 		if err != nil {
@@ -280,6 +481,7 @@ func train[T net.Float](e *env, c *config, o *runOptions) error {
 	}
 	ctx, stop := signal.NotifyContext(context.Background(), os.Interrupt, syscall.SIGTERM)
 	defer stop()
+	snapshot()
 	out, err := sess.Run(ctx)
 	rep.finish()
 	res := out.Result
@@ -289,12 +491,60 @@ func train[T net.Float](e *env, c *config, o *runOptions) error {
 	if out.Stop == recipe.StopCanceled {
 		st := sess.Trainer().State()
 		if serr := modelfile.Save(o.checkpoint, bundle(&st)); serr != nil {
-			return fmt.Errorf("%w; saving the checkpoint failed too: %v", errInterrupted, serr)
+			return fmt.Errorf("%w; %v", errInterrupted, writeErr("checkpoint", o.checkpoint, serr))
 		}
-		return fmt.Errorf("%w after %d steps; checkpoint saved: resume with rhomb train -resume %s -o %s", errInterrupted, res.Steps, o.checkpoint, o.out)
+		return fmt.Errorf("%w after %d steps; checkpoint saved: resume with %s", errInterrupted, res.Steps, resumeHint(c, o, o.checkpoint, ""))
+	}
+	diverged, how := divergence(err)
+	// A diverged run keeps its last finite weights in a checkpoint, -save-every
+	// or not: from them it can go on with a smaller step size.
+	var divergedAt string
+	if diverged || out.Stop == recipe.StopDiverged {
+		if last.state.Epoch == 0 {
+			divergedAt = "the start of the run"
+		} else {
+			divergedAt = fmt.Sprintf("the end of epoch %d", last.state.Epoch)
+		}
+	}
+	saveLast := func() error {
+		if o.checkpoint == "" {
+			return errors.New("no checkpoint file (give -o)")
+		}
+		ps := model.Params()
+		kept := make([][]T, len(ps))
+		for i, p := range ps {
+			kept[i] = append([]T(nil), p.Value...)
+			copy(p.Value, last.params[i])
+		}
+		syncModel(model)
+		st := last.state
+		serr := modelfile.Save(o.checkpoint, bundle(&st))
+		for i, p := range ps {
+			copy(p.Value, kept[i])
+		}
+		syncModel(model)
+		return serr
+	}
+	if diverged {
+		rate := sess.State().Rate
+		msg := fmt.Sprintf("training diverged: %s, and kept diverging after the step size was lowered %d times, to η = %.4g; no epoch finished, so there is no model to save", how, out.Lowered, rate)
+		if serr := saveLast(); serr != nil {
+			return fmt.Errorf("%s; the weights from %s were not saved either: %v", msg, divergedAt, serr)
+		}
+		return fmt.Errorf("%s.\nThe weights from %s, before the failing step, are saved in the checkpoint %s; to go on with a smaller step size:\n  %s",
+			msg, divergedAt, o.checkpoint, resumeHint(c, o, o.checkpoint, smallerStep(c, rate)))
 	}
 	if err != nil {
-		return fmt.Errorf("training failed: %w", err)
+		return fmt.Errorf("training failed: %s", libPrefixes.Replace(err.Error()))
+	}
+	var divergedNote string
+	if out.Stop == recipe.StopDiverged {
+		if serr := saveLast(); serr != nil {
+			divergedNote = fmt.Sprintf("note: the run diverged and ends with its best epoch; its last finite weights (from %s) could not be saved: %v\n", divergedAt, serr)
+		} else {
+			divergedNote = fmt.Sprintf("note: the run diverged and ends with its best epoch; its last finite weights (from %s) are saved in the checkpoint %s; to go on from there with a smaller step size:\n  %s\n",
+				divergedAt, o.checkpoint, resumeHint(c, o, o.checkpoint, smallerStep(c, sess.State().Rate)))
+		}
 	}
 
 	metrics := map[string]any{"epochs": res.Epochs, "steps": res.Steps, "status": res.Status.String(), "rho": n.Rho(),
@@ -332,11 +582,12 @@ func train[T net.Float](e *env, c *config, o *runOptions) error {
 		m := bundle(nil)
 		m.Metrics = metrics
 		if err := modelfile.Save(o.out, m); err != nil {
-			return err
+			return writeErr("model", o.out, err)
 		}
 		fmt.Fprintf(w, "; saved %s", o.out)
 	}
 	fmt.Fprintln(w)
+	fmt.Fprint(w, divergedNote)
 	if p.val != nil {
 		fmt.Fprintf(w, "kept epoch %d of %d: best validation %s %.4f (ties go to the larger minimum margin)\n", out.Best.Epoch, res.Epochs, out.Metric, out.Best.Value)
 	}
@@ -361,6 +612,9 @@ func train[T net.Float](e *env, c *config, o *runOptions) error {
 		title := o.title
 		if title == "" {
 			title = reportTitle(c)
+			if c.Data == "-" {
+				title = "rhomb run report: " + stdinName
+			}
 		}
 		if err := rr.write(o.report, title, o.source, o.notes, c, p, model, n, res, val, test); err != nil {
 			return fmt.Errorf("report: %w", err)
@@ -461,7 +715,7 @@ func trainSearch[T net.Float](e *env, c *config, o *runOptions, p *prepared[T]) 
 	m := &modelfile.Model[T]{Network: f.Network, Normalized: f.Normalized, Pipeline: p.pipeline, Classes: p.classes,
 		Label: c.Label, Loss: f.Loss.Name(), Training: won.record(), Metrics: metrics}
 	if err := modelfile.Save(o.out, m); err != nil {
-		return err
+		return writeErr("model", o.out, err)
 	}
 	fmt.Fprintf(w, "kept candidate with step factor %.3g, ρ0 %.3g, λ %.3g, hidden %v: epoch %d of %d; saved %s\n",
 		f.Plan.StepFactor, f.Plan.Rho0, f.Plan.Decay, f.Plan.Hidden, f.Outcome.Best.Epoch, f.Outcome.Result.Epochs, o.out)
@@ -519,6 +773,14 @@ func warnImbalance[T net.Float](w io.Writer, p *prepared[T]) {
 			fmt.Fprintf(w, "note: class %q holds %.1f%% of the training rows (%d; the largest class %d); -balance weights the classes and -metric balanced ranks epochs by balanced accuracy\n",
 				p.classes[k], 100*float64(n)/float64(p.train.Rows), n, most)
 		}
+	}
+}
+
+// syncModel brings a normalized model's weights up to date after its
+// parameters were set, as the training procedure does.
+func syncModel[T net.Float](m optim.Model[T]) {
+	if sy, ok := m.(interface{ Sync() }); ok {
+		sy.Sync()
 	}
 }
 

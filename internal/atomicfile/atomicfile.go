@@ -2,6 +2,19 @@
 // contents or the complete new ones, never a part: the data goes to a
 // temporary file in the same directory, is synced to disk, and is renamed
 // over the target; the directory is synced so the rename survives a crash.
+//
+// A writer killed before it could remove its temporary file (kill -9, a
+// power cut) leaves it behind. The next Create for the same target
+// removes such leftovers: files named as Create names them for that
+// target ("." + the target's name + ".tmp-" + a number in base 36), that
+// are regular files, that no live writer holds, and that were last
+// written more than a minute ago. A writer holds its temporary file with
+// an advisory lock (flock) from creation to the end, and the lock goes
+// with the process, however it ends; so a file that can be locked has no
+// writer. The minute covers the instant between a writer's creating the
+// file and locking it. Where locks are not available (or the file
+// system refuses them), only files older than a day are removed, since
+// no save takes that long. Files of any other name are never touched.
 package atomicfile
 
 import (
@@ -10,7 +23,20 @@ import (
 	"os"
 	"path/filepath"
 	"strconv"
+	"strings"
+	"time"
 )
+
+// Ages beyond which a leftover temporary file is removed: unlocked
+// (its writer gone), or of unknown state where locks cannot tell.
+const (
+	graceUnlocked = time.Minute
+	graceUnknown  = 24 * time.Hour
+)
+
+// tmpMark separates the target's name from the number in a temporary
+// file's name.
+const tmpMark = ".tmp-"
 
 // File is a file being written; Commit makes it the target, Abort (or a
 // failed Commit) removes it.
@@ -27,8 +53,9 @@ func Create(path string) (*File, error) {
 	if dir == "" {
 		dir = "."
 	}
+	removeStale(dir, base)
 	for range 100 {
-		tmp := filepath.Join(dir, "."+base+".tmp-"+strconv.FormatUint(rand.Uint64(), 36))
+		tmp := filepath.Join(dir, "."+base+tmpMark+strconv.FormatUint(rand.Uint64(), 36))
 		f, err := os.OpenFile(tmp, os.O_RDWR|os.O_CREATE|os.O_EXCL, 0o666)
 		if os.IsExist(err) {
 			continue
@@ -36,6 +63,7 @@ func Create(path string) (*File, error) {
 		if err != nil {
 			return nil, err
 		}
+		hold(f)
 		return &File{File: f, target: path}, nil
 	}
 	return nil, fmt.Errorf("atomicfile: no free temporary name beside %s", path)
@@ -87,4 +115,41 @@ func WriteFile(path string, b []byte) error {
 		return err
 	}
 	return f.Commit()
+}
+
+// ours reports whether name is a temporary file's name as Create gives it
+// for the target base: "." + base + ".tmp-" + a uint64 in base 36 (1 to
+// 13 digits and lower-case letters).
+func ours(name, base string) bool {
+	num, ok := strings.CutPrefix(name, "."+base+tmpMark)
+	if !ok || num == "" {
+		return false
+	}
+	v, err := strconv.ParseUint(num, 36, 64)
+	return err == nil && strconv.FormatUint(v, 36) == num
+}
+
+// removeStale removes the temporary files for base in dir that their
+// writers left behind (see the package documentation). It is best
+// effort: a file it cannot examine or remove is left alone.
+func removeStale(dir, base string) {
+	entries, err := os.ReadDir(dir)
+	if err != nil {
+		return
+	}
+	now := time.Now()
+	for _, e := range entries {
+		if !e.Type().IsRegular() || !ours(e.Name(), base) {
+			continue
+		}
+		info, err := e.Info()
+		if err != nil {
+			continue
+		}
+		age := now.Sub(info.ModTime())
+		if age < graceUnlocked {
+			continue
+		}
+		removeIfOrphaned(filepath.Join(dir, e.Name()), age)
+	}
 }
