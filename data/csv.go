@@ -162,9 +162,11 @@ func NewCSVReader(r io.Reader, o CSVOptions) *csv.Reader {
 // CSVInputError returns err as a *ParseError naming source when it is a
 // problem a reader made by NewCSVReader found in the input, or a syntax
 // error of encoding/csv; header, the names read from the header line
-// (nil before it is read), names the field. Other errors come back as
-// they are.
-func CSVInputError(err error, source string, header []string) error {
+// (nil before it is read), names the field, and advise words the settings
+// the message advises changing (nil: CSVOptions' fields, as a Go caller
+// sets them; a command line passes its flags' words, as for
+// CSVOptions.Advise). Other errors come back as they are.
+func CSVInputError(err error, source string, header []string, advise func(Fix) string) error {
 	var ie *inputError
 	var pe *csv.ParseError
 	if !errors.As(err, &ie) && !errors.As(err, &pe) {
@@ -174,7 +176,10 @@ func CSVInputError(err error, source string, header []string) error {
 	for i, h := range header {
 		names[i] = strings.TrimSpace(h)
 	}
-	rd := &csvRead{source: source, names: names, words: goWords}
+	if advise == nil {
+		advise = goWords
+	}
+	rd := &csvRead{source: source, names: names, words: advise}
 	return rd.readErr(err)
 }
 

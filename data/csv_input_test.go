@@ -352,12 +352,12 @@ func TestNewCSVReader(t *testing.T) {
 		t.Fatalf("row %q, %v", rec, err)
 	}
 	_, err = r.Read()
-	checkParseErrorAt(t, data.CSVInputError(err, "in.csv", header), data.ErrNotUTF8, "in.csv", 3, 6, "city")
+	checkParseErrorAt(t, data.CSVInputError(err, "in.csv", header, nil), data.ErrNotUTF8, "in.csv", 3, 6, "city")
 	// Syntax errors of encoding/csv come out as ParseErrors too, and other
 	// errors as they are.
 	_, err = data.NewCSVReader(strings.NewReader("a,b\"c\n"), data.CSVOptions{}).Read()
-	checkParseErrorAt(t, data.CSVInputError(err, "in.csv", nil), csv.ErrBareQuote, "in.csv", 1, 4, "")
-	if err := data.CSVInputError(io.ErrUnexpectedEOF, "in.csv", nil); err != io.ErrUnexpectedEOF {
+	checkParseErrorAt(t, data.CSVInputError(err, "in.csv", nil, nil), csv.ErrBareQuote, "in.csv", 1, 4, "")
+	if err := data.CSVInputError(io.ErrUnexpectedEOF, "in.csv", nil, nil); err != io.ErrUnexpectedEOF {
 		t.Errorf("other error came back as %v", err)
 	}
 }

@@ -58,6 +58,9 @@ func runClassify(e *env, args []string) error {
 	var w io.Writer = e.stdout
 	var f *atomicfile.File
 	if *out != "-" {
+		if err := writable("classify", "-o", *out); err != nil {
+			return err
+		}
 		// Write beside the target and rename at the end, so a failed run
 		// leaves no half-written output.
 		if f, err = atomicfile.Create(*out); err != nil {

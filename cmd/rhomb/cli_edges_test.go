@@ -309,14 +309,7 @@ var goNames = []*regexp.Regexp{
 // test's author could not change (the serving path and the library's
 // packages), by the case that shows them and the text. A case listed
 // here that no longer shows its text fails the test: take it out.
-var knownGoNames = map[string]string{
-	// The serving path reads CSV with encoding/csv alone (rows.go), so a
-	// Latin-1 value reaches the pipeline, whose error keeps its package
-	// prefix (data/prep): "prep: field "city": value "M\xfcnster":
-	// category not seen in training".
-	"check latin1 cities":    "prep: field",
-	"classify latin1 cities": "prep: field",
-}
+var knownGoNames = map[string]string{}
 
 // TestMessagesNameFlags runs the commands with bad inputs that reach the
 // error paths, and scans what they print for Go identifiers, which a user

@@ -96,18 +96,17 @@ func openRows(in io.Reader, source string, m *classify.Model, label string, carr
 	if m.Pipeline() == nil {
 		return nil, modelError{errors.New("the model has no preprocessing for CSV rows (it was trained on IDX data): use -images and -labels")}
 	}
-	r := csv.NewReader(in)
+	// The same input checks as training's reader (UTF-8, line ends,
+	// record limits): what train refuses, classify and check refuse too.
+	r := data.NewCSVReader(in, data.CSVOptions{Comma: sep, Advise: flagWords})
 	r.ReuseRecord = true
 	r.FieldsPerRecord = 0 // every row as wide as the header
-	if sep != 0 {
-		r.Comma = sep
-	}
 	head, err := r.Read()
 	if errors.Is(err, io.EOF) {
 		return nil, dataError{&data.ParseError{File: source, Err: data.ErrEmpty}}
 	}
 	if err != nil {
-		return nil, dataError{csvError(source, err)}
+		return nil, dataError{csvError(source, nil, err)}
 	}
 	index := map[string]int{}
 	names := make([]string, len(head))
@@ -152,17 +151,10 @@ func openRows(in io.Reader, source string, m *classify.Model, label string, carr
 	return s, nil
 }
 
-// csvError turns encoding/csv's errors into the CLI's, saying where and
-// what to do.
-func csvError(source string, err error) error {
-	var pe *csv.ParseError
-	if errors.As(err, &pe) {
-		if errors.Is(err, csv.ErrFieldCount) {
-			return &data.ParseError{File: source, Line: pe.Line, Err: fmt.Errorf("%w: the row's field count differs from the header's; look for a decimal comma or an unquoted separator inside a value (quote the value, or choose another separator with -sep)", data.ErrRagged)}
-		}
-		return &data.ParseError{File: source, Line: pe.Line, Column: pe.Column, Err: pe.Err}
-	}
-	return fmt.Errorf("%s: %w", source, err)
+// csvError turns the reader's errors into the CLI's, saying where and
+// what to do in flags' words.
+func csvError(source string, header []string, err error) error {
+	return data.CSVInputError(err, source, header, flagWords)
 }
 
 // next reads and classifies one row; it returns io.EOF at the end.
@@ -180,7 +172,7 @@ func (s *csvRows) next() (csvRow, error) {
 		return csvRow{}, dataError{&data.ParseError{File: s.source, Line: line, Err: fmt.Errorf("%w: the row has %d fields, the header %d: no value for %q and the columns after it; add the missing fields (empty if the values are missing)", data.ErrRagged, len(rec), len(s.header), name)}}
 	}
 	if err != nil {
-		return csvRow{}, dataError{csvError(s.source, err)}
+		return csvRow{}, dataError{csvError(s.source, s.header, err)}
 	}
 	line, _ := s.r.FieldPos(0)
 	for i, c := range s.cols {
