@@ -4,8 +4,10 @@ import (
 	"errors"
 	"fmt"
 	"io"
+	"math"
 
 	"github.com/rhomb/rhomb/data"
+	"github.com/rhomb/rhomb/internal/calib"
 	"github.com/rhomb/rhomb/internal/score"
 	"github.com/rhomb/rhomb/net"
 	"github.com/rhomb/rhomb/net/classify"
@@ -81,11 +83,16 @@ func check(e *env, m *classify.Model, in, label, images, labels string, sep rune
 		if err := m.ClassifyVectors(nil, x, rows, answers); err != nil {
 			return dataError{fmt.Errorf("%s: %w", images, err)}
 		}
+		var ds decisionStats
 		for r, a := range answers {
 			conf.Add(truth[r], a.Class)
 			addScore(&bs, a.Scores, truth[r])
+			ds.add(a, truth[r])
 		}
-		return writeScores(e.stdout, conf, &bs)
+		if err := writeScores(e.stdout, conf, &bs); err != nil {
+			return err
+		}
+		return ds.write(e.stdout, m)
 	}
 	if label == "" {
 		label = m.Info().Label
@@ -98,6 +105,7 @@ func check(e *env, m *classify.Model, in, label, images, labels string, sep rune
 		index[c] = i
 	}
 	skipped := 0
+	var ds decisionStats
 	err := forEachRow(e, m, in, label, nil, sep, skip, func(row csvRow) error {
 		if !row.answered {
 			skipped++
@@ -109,6 +117,7 @@ func check(e *env, m *classify.Model, in, label, images, labels string, sep rune
 		}
 		conf.Add(truth, row.answer.Class)
 		addScore(&bs, row.answer.Scores, truth)
+		ds.add(row.answer, truth)
 		return nil
 	})
 	if err != nil {
@@ -120,8 +129,76 @@ func check(e *env, m *classify.Model, in, label, images, labels string, sep rune
 	if skipped > 0 {
 		fmt.Fprintf(e.stdout, "rows left out for missing values: %d\n", skipped)
 	}
-	return writeScores(e.stdout, conf, &bs)
+	if err := writeScores(e.stdout, conf, &bs); err != nil {
+		return err
+	}
+	return ds.write(e.stdout, m)
 }
+
+// decisionStats measures what a model file's decision adds, on labelled
+// rows: the calibration (expected calibration error of the top-class
+// probability), the prediction sets (coverage and mean size) and the
+// reject option (the share of rows answered and their error rate).
+type decisionStats struct {
+	conf                  []float64
+	correct               []bool
+	rows, covered, inSets int
+	answered, wrong       int
+}
+
+func (d *decisionStats) add(a classify.Answer, truth int) {
+	d.rows++
+	if a.Probabilities != nil {
+		top := a.Probabilities[0]
+		for _, p := range a.Probabilities {
+			top = max(top, p)
+		}
+		d.conf, d.correct = append(d.conf, top), append(d.correct, a.Class == truth)
+	}
+	d.inSets += len(a.Set)
+	for _, j := range a.Set {
+		if j == truth {
+			d.covered++
+		}
+	}
+	if !a.Abstained {
+		d.answered++
+		if a.Class != truth {
+			d.wrong++
+		}
+	}
+}
+
+func (d *decisionStats) write(w io.Writer, m *classify.Model) error {
+	dec := m.Decision()
+	if dec == nil || d.rows == 0 {
+		return nil
+	}
+	if dec.Threshold != nil {
+		fmt.Fprintf(w, "decision threshold %.6g on the score (chosen for %s)\n", *dec.Threshold, dec.ThresholdFor)
+	}
+	if dec.Calibration != nil {
+		fmt.Fprintf(w, "calibration (%s): expected calibration error %.4f (top-class probability, %d equal bins)\n",
+			dec.Calibration.Kind, calib.ECE(d.conf, d.correct, eceBins), eceBins)
+	}
+	if s := dec.Sets; s != nil {
+		fmt.Fprintf(w, "prediction sets for %.3g coverage: %.4f of rows covered, %.3f classes per set on average\n",
+			s.Coverage, float64(d.covered)/float64(d.rows), float64(d.inSets)/float64(d.rows))
+	}
+	if a := dec.Abstain; a != nil {
+		errRate := math.NaN()
+		if d.answered > 0 {
+			errRate = float64(d.wrong) / float64(d.answered)
+		}
+		fmt.Fprintf(w, "reject option for %.3g error: %.4f of rows answered, error %.4f among them (%d of %d)\n",
+			a.TargetError, float64(d.answered)/float64(d.rows), errRate, d.wrong, d.answered)
+	}
+	return nil
+}
+
+// eceBins is the number of equal confidence bins of the expected
+// calibration error (15, as Guo et al. 2017 use; from memory).
+const eceBins = 15
 
 // classesOf returns each row's class index.
 func classesOf[T net.Float](s *data.Set[T]) []int {
