@@ -5,6 +5,7 @@ import (
 	"flag"
 	"fmt"
 	"math"
+	"strconv"
 	"strings"
 
 	"github.com/rhomb/rhomb/data"
@@ -66,6 +67,15 @@ type config struct {
 	Metric     string  `json:"metric"`
 	Strict     bool    `json:"strict,omitempty"`
 	Search     int     `json:"search,omitempty"`
+	// How the saved model answers (recipe.FitDecision): the two-class
+	// threshold ("auto": chosen on the validation rows for the metric;
+	// "zero": a positive score means the second class; or a number), the
+	// calibration, the prediction sets' coverage and the reject option's
+	// target error (0: none).
+	Threshold   string  `json:"threshold,omitempty"`
+	NoCalibrate bool    `json:"no_calibration,omitempty"`
+	Coverage    float64 `json:"coverage,omitempty"`
+	TargetError float64 `json:"target_error,omitempty"`
 	// StepChanges records every change of the step size made on resuming
 	// (-lr or -step-factor given with -resume), oldest first; LR and
 	// StepFactor above are the settings in force now.
@@ -93,7 +103,41 @@ func defaultConfig() config {
 	return config{Missing: "impute", Holdout: 0.2, Hidden: d.Hidden, Activation: "relu", Init: "he", Rho0: d.Rho0,
 		Norm: d.Norm.String(), Hold: "multiplier", Float: 32, Loss: "square", LR: 0, Schedule: "warm-cosine",
 		Batch: d.Batch, Draw: "shuffled", Momentum: d.Momentum, Epochs: 0, Decay: d.Decay, Seed: 1,
-		StepFactor: d.StepFactor, Warmup: d.Warmup, Patience: 0, Metric: d.Metric.String()}
+		StepFactor: d.StepFactor, Warmup: d.Warmup, Patience: 0, Metric: d.Metric.String(), Threshold: defaultThreshold()}
+}
+
+// defaultThreshold spells recipe.DefaultDecision's threshold rule as the
+// -threshold flag does.
+func defaultThreshold() string {
+	if recipe.DefaultDecision().Rule == recipe.ThresholdForMetric {
+		return "auto"
+	}
+	return "zero"
+}
+
+// thresholdRule reads -threshold.
+func (c *config) thresholdRule() (recipe.ThresholdRule, float64, error) {
+	switch c.Threshold {
+	case "":
+		return recipe.DefaultDecision().Rule, 0, nil
+	case "auto":
+		return recipe.ThresholdForMetric, 0, nil
+	case "zero":
+		return recipe.ThresholdZero, 0, nil
+	}
+	v, err := strconv.ParseFloat(c.Threshold, 64)
+	if err != nil || math.IsNaN(v) || math.IsInf(v, 0) {
+		return 0, 0, fmt.Errorf("-threshold %q: want auto, zero or a number such as 0.25", c.Threshold)
+	}
+	return recipe.ThresholdGiven, v, nil
+}
+
+// decisionOptions are the settings recipe.FitDecision takes.
+func (c *config) decisionOptions() recipe.DecisionOptions {
+	rule, t, _ := c.thresholdRule()
+	m, _ := recipe.ParseMetric(c.Metric)
+	return recipe.DecisionOptions{Rule: rule, Threshold: t, Metric: m, NoCalibration: c.NoCalibrate,
+		Coverage: c.Coverage, TargetError: c.TargetError, Seed: c.Seed}
 }
 
 // bind registers the flags that set c.
@@ -135,6 +179,10 @@ func (c *config) bind(fs *flag.FlagSet) {
 	fs.IntVar(&c.Patience, "patience", c.Patience, "stop after `N` epochs without a better validation score (0: 15, more on small sets; -1 never)")
 	fs.StringVar(&c.Metric, "metric", c.Metric, "rank epochs on the validation rows by `accuracy|balanced|macro-f1|auc` (balanced accuracy; macro-F1; ROC AUC of the scores, two classes only); ties go to the larger minimum margin")
 	fs.IntVar(&c.Search, "search", c.Search, "race `N` (2 to 8) variations of these settings (step factor, ρ0, λ, width) by successive halving on the validation rows and keep the best (0: train these settings only)")
+	fs.StringVar(&c.Threshold, "threshold", c.Threshold, "two classes: the score above which the answer is the second class: `auto|zero|NUMBER` (auto: chosen on the validation rows for -metric, balanced accuracy for auc)")
+	fs.BoolVar(&c.NoCalibrate, "no-calibration", c.NoCalibrate, "do not fit calibrated probabilities (Platt scaling for two classes, a temperature for more) on the validation rows")
+	fs.Float64Var(&c.Coverage, "coverage", c.Coverage, "also store prediction sets that hold the true class with this `probability` (such as 0.9), calibrated on validation rows; 0: none")
+	fs.Float64Var(&c.TargetError, "target-error", c.TargetError, "let the model abstain where its normalized margin is below the floor that keeps the answered validation rows' error at this `rate` (such as 0.05); 0: always answer")
 	fs.BoolVar(&c.Strict, "strict", c.Strict, "fail (exit 1) when the chosen model is degenerate: one class only, no better than the majority class, or a class never recognized")
 	fs.Float64Var(&c.Decay, "decay", c.Decay, "weight decay `λ` (on the scales when normalized)")
 	fs.Float64Var(&c.Temp, "temp", c.Temp, "Langevin `temperature` T: noise √(2ηT) per step")
@@ -184,6 +232,17 @@ func (c *config) check() error {
 	}
 	if _, err := recipe.ParseMetric(c.Metric); err != nil {
 		return bad("train: -metric: %v", err)
+	}
+	if _, _, err := c.thresholdRule(); err != nil {
+		return bad("train: %v", err)
+	}
+	switch {
+	case !(c.Coverage >= 0 && c.Coverage < 1):
+		return bad("train: -coverage %v: want 0 (no prediction sets) or a level below 1, such as 0.9", c.Coverage)
+	case !(c.TargetError >= 0 && c.TargetError < 1):
+		return bad("train: -target-error %v: want 0 (always answer) or a rate below 1, such as 0.05", c.TargetError)
+	case c.Coverage > 0 && c.NoCalibrate:
+		return bad("train: -coverage needs calibrated probabilities: leave out -no-calibration")
 	}
 	if c.Search < 0 || c.Search == 1 || c.Search > 8 {
 		return bad("train: -search %d: want 0 (no search) or 2 to 8 candidates", c.Search)

@@ -164,9 +164,19 @@ func trainingScores[T net.Float](t *testing.T, model, raw string) ([]float64, []
 	out := m.Network.Forward(s.X, s.Rows)
 	scores := make([]float64, s.Rows)
 	classes := make([]string, s.Rows)
+	// The saved decision's threshold (train chooses one on the validation
+	// rows by default): a score above it means the second class.
+	threshold := 0.0
+	if d := m.Decision; d != nil && d.Threshold != nil {
+		threshold = *d.Threshold
+	}
 	for r := range s.Rows {
 		scores[r] = float64(out[r])
-		classes[r] = m.Classes[data.ClassOf(out[r:r+1])]
+		c := 0
+		if scores[r] > threshold {
+			c = 1
+		}
+		classes[r] = m.Classes[c]
 	}
 	return scores, classes
 }

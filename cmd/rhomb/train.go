@@ -555,11 +555,16 @@ func train[T net.Float](e *env, c *config, o *runOptions) error {
 	if !math.IsNaN(out.Sharpness) {
 		metrics["sharpness"] = out.Sharpness
 	}
+	saved := bundle(nil)
+	decision, err := fitDecision(c, saved, p.val)
+	if err != nil {
+		return err
+	}
 	report := func(name string, set *data.Set[T]) *score.Confusion {
 		if set == nil {
 			return nil
 		}
-		conf := confusion(model, set, p.classes)
+		conf := decidedConfusion(model, saved, set, p.classes)
 		metrics[name+"_accuracy"] = conf.Accuracy()
 		metrics[name+"_rows"] = set.Rows
 		return conf
@@ -579,7 +584,7 @@ func train[T net.Float](e *env, c *config, o *runOptions) error {
 	}
 	fmt.Fprintf(w, "trained %d epochs (%d steps, %s)", res.Epochs, res.Steps, out.Stop)
 	if o.out != "" {
-		m := bundle(nil)
+		m := saved
 		m.Metrics = metrics
 		if err := modelfile.Save(o.out, m); err != nil {
 			return writeErr("model", o.out, err)
@@ -591,6 +596,7 @@ func train[T net.Float](e *env, c *config, o *runOptions) error {
 	if p.val != nil {
 		fmt.Fprintf(w, "kept epoch %d of %d: best validation %s %.4f (ties go to the larger minimum margin)\n", out.Best.Epoch, res.Epochs, out.Metric, out.Best.Value)
 	}
+	writeLines(w, decision)
 	fmt.Fprintf(w, "classes: %s\n", joinClasses(p.classes))
 	if p.table != nil && p.table.Dropped > 0 {
 		fmt.Fprintf(w, "rows dropped for missing values: %d\n", p.table.Dropped)
@@ -698,11 +704,17 @@ func trainSearch[T net.Float](e *env, c *config, o *runOptions, p *prepared[T]) 
 	metrics := map[string]any{"epochs": f.Outcome.Result.Epochs, "steps": f.Outcome.Result.Steps, "best_epoch": f.Outcome.Best.Epoch,
 		"ranked_by": f.Outcome.Metric.String(), "stopped": f.Outcome.Stop.String(), "learning_rate": f.Outcome.Rate,
 		"search_candidates": len(entries), "rho": f.Network.Rho()}
-	val := confusion(model, p.val, p.classes)
+	m := &modelfile.Model[T]{Network: f.Network, Normalized: f.Normalized, Pipeline: p.pipeline, Classes: p.classes,
+		Label: c.Label, Loss: f.Loss.Name(), Training: won.record(), Metrics: metrics}
+	decision, err := fitDecision(c, m, p.val)
+	if err != nil {
+		return err
+	}
+	val := decidedConfusion(model, m, p.val, p.classes)
 	metrics["validation_accuracy"], metrics["validation_rows"] = val.Accuracy(), p.val.Rows
 	var test *score.Confusion
 	if p.test != nil {
-		test = confusion(model, p.test, p.classes)
+		test = decidedConfusion(model, m, p.test, p.classes)
 		metrics["test_accuracy"], metrics["test_rows"] = test.Accuracy(), p.test.Rows
 	}
 	health := recipe.Check(model, p.val, p.classes)
@@ -712,13 +724,12 @@ func trainSearch[T net.Float](e *env, c *config, o *runOptions, p *prepared[T]) 
 			return fmt.Errorf("the trained model is degenerate, so nothing was saved (-strict): %s", cliHealth(health))
 		}
 	}
-	m := &modelfile.Model[T]{Network: f.Network, Normalized: f.Normalized, Pipeline: p.pipeline, Classes: p.classes,
-		Label: c.Label, Loss: f.Loss.Name(), Training: won.record(), Metrics: metrics}
 	if err := modelfile.Save(o.out, m); err != nil {
 		return writeErr("model", o.out, err)
 	}
 	fmt.Fprintf(w, "kept candidate with step factor %.3g, ρ0 %.3g, λ %.3g, hidden %v: epoch %d of %d; saved %s\n",
 		f.Plan.StepFactor, f.Plan.Rho0, f.Plan.Decay, f.Plan.Hidden, f.Outcome.Best.Epoch, f.Outcome.Result.Epochs, o.out)
+	writeLines(w, decision)
 	if !health.OK() {
 		fmt.Fprintf(w, "\nwarning: the kept model looks degenerate: %s\n", cliHealth(health))
 	}

@@ -7,7 +7,9 @@ import (
 	"fmt"
 	"io"
 	"math"
+	"strconv"
 	"strings"
+	"unicode/utf8"
 )
 
 // Confusion counts predictions: Count[i][j] rows of true class i were
@@ -118,23 +120,46 @@ func (c *Confusion) PerClass() []Class {
 func (c *Confusion) Write(w io.Writer) error {
 	width := len("class")
 	for _, n := range c.Classes {
-		width = max(width, len(n))
+		width = max(width, utf8.RuneCountInString(n))
 	}
 	var b strings.Builder
 	fmt.Fprintf(&b, "accuracy %.4f on %d rows\n\n", c.Accuracy(), c.Total())
-	fmt.Fprintf(&b, "%-*s  %9s  %9s  %9s  %7s\n", width, "class", "precision", "recall", "F1", "rows")
+	fmt.Fprintf(&b, "%s  %9s  %9s  %9s  %7s\n", pad("class", width), "precision", "recall", "F1", "rows")
 	for _, k := range c.PerClass() {
-		fmt.Fprintf(&b, "%-*s  %9s  %9s  %9s  %7d\n", width, k.Name, figure(k.Precision), figure(k.Recall), figure(k.F1), k.Support)
+		fmt.Fprintf(&b, "%s  %9s  %9s  %9s  %7d\n", pad(k.Name, width), figure(k.Precision), figure(k.Recall), figure(k.F1), k.Support)
 	}
-	fmt.Fprintf(&b, "\nconfusion (rows: true class, columns: predicted)\n%-*s", width, "")
-	for j := range c.Classes {
-		fmt.Fprintf(&b, "  %7s", abbreviate(c.Classes[j], 7))
+	// The columns are headed by the whole class names, never cut (two
+	// names that share a beginning must not look alike); when that would
+	// make the table wider than 100 characters, by numbers, with a legend.
+	heads := make([]string, len(c.Classes))
+	total := width
+	for j, n := range c.Classes {
+		heads[j] = n
+		total += 2 + max(7, utf8.RuneCountInString(n))
+	}
+	numbered := total > 100
+	if numbered {
+		for j := range heads {
+			heads[j] = strconv.Itoa(j + 1)
+		}
+	}
+	label := width
+	if numbered {
+		label += len(strconv.Itoa(len(c.Classes))) + 1
+	}
+	fmt.Fprintf(&b, "\nconfusion (rows: true class, columns: predicted)\n%s", pad("", label))
+	for _, h := range heads {
+		fmt.Fprintf(&b, "  %s", padLeft(h, max(7, utf8.RuneCountInString(h))))
 	}
 	b.WriteByte('\n')
 	for i, row := range c.Count {
-		fmt.Fprintf(&b, "%-*s", width, c.Classes[i])
-		for _, v := range row {
-			fmt.Fprintf(&b, "  %7d", v)
+		name := c.Classes[i]
+		if numbered {
+			name = fmt.Sprintf("%d %s", i+1, name)
+		}
+		b.WriteString(pad(name, label))
+		for j, v := range row {
+			fmt.Fprintf(&b, "  %s", padLeft(strconv.Itoa(v), max(7, utf8.RuneCountInString(heads[j]))))
 		}
 		b.WriteByte('\n')
 	}
@@ -142,11 +167,14 @@ func (c *Confusion) Write(w io.Writer) error {
 	return err
 }
 
-func abbreviate(s string, n int) string {
-	if len(s) <= n {
-		return s
-	}
-	return s[:n-1] + "…"
+// pad and padLeft pad s with spaces to n characters (runes, not bytes, so
+// that names outside ASCII line up).
+func pad(s string, n int) string {
+	return s + strings.Repeat(" ", max(0, n-utf8.RuneCountInString(s)))
+}
+
+func padLeft(s string, n int) string {
+	return strings.Repeat(" ", max(0, n-utf8.RuneCountInString(s))) + s
 }
 
 // figure prints a ratio, or "-" where it is undefined (NaN).

@@ -1,6 +1,7 @@
 package score
 
 import (
+	"fmt"
 	"math"
 	"strings"
 	"testing"
@@ -67,5 +68,49 @@ func TestBalancedAccuracy(t *testing.T) {
 	}
 	if b := New([]string{"x", "y"}).BalancedAccuracy(); !math.IsNaN(b) {
 		t.Errorf("balanced accuracy with no predictions %v, want NaN", b)
+	}
+}
+
+// TestConfusionHeadsNotCut: two class names that share their first seven
+// letters stay apart in the confusion table's heads (they were cut to
+// "cavita…" before), and a table too wide for whole names numbers its
+// columns with a legend on the rows.
+func TestConfusionHeadsNotCut(t *testing.T) {
+	c := New([]string{"cavitation-early", "cavitation-late", "ok"})
+	c.Add(0, 0)
+	c.Add(1, 0)
+	c.Add(2, 2)
+	var b strings.Builder
+	if err := c.Write(&b); err != nil {
+		t.Fatal(err)
+	}
+	text := b.String()
+	_, table, _ := strings.Cut(text, "columns: predicted)\n")
+	head := strings.Fields(strings.SplitN(table, "\n", 2)[0])
+	if len(head) != 3 || head[0] != "cavitation-early" || head[1] != "cavitation-late" || head[2] != "ok" {
+		t.Fatalf("heads %q:\n%s", head, text)
+	}
+	var names []string
+	for i := range 12 {
+		names = append(names, fmt.Sprintf("a-rather-long-class-name-%02d", i))
+	}
+	wide := New(names)
+	wide.Add(3, 4)
+	b.Reset()
+	if err := wide.Write(&b); err != nil {
+		t.Fatal(err)
+	}
+	_, table, _ = strings.Cut(b.String(), "columns: predicted)\n")
+	lines := strings.Split(table, "\n")
+	if h := strings.Fields(lines[0]); len(h) != 12 || h[0] != "1" || h[11] != "12" {
+		t.Fatalf("numbered heads %q", h)
+	}
+	if !strings.HasPrefix(lines[4], "4 a-rather-long-class-name-03") {
+		t.Fatalf("row 4 %q: want its number and whole name", lines[4])
+	}
+	for _, l := range lines[:13] {
+		if n := len([]rune(l)); n > 200 {
+			t.Fatalf("a line of %d characters", n)
+		}
 	}
 }

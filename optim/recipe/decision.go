@@ -52,6 +52,12 @@ type DecisionOptions struct {
 	Seed uint64
 }
 
+// DefaultDecision is what rhomb train fits unless told otherwise: a
+// calibration, and the decision threshold by the rule the benchmark suite
+// chose (docs/defaults.md); no prediction sets and no reject option,
+// which need a level only the user can choose.
+func DefaultDecision() DecisionOptions { return DecisionOptions{Rule: ThresholdZero} }
+
 // DecisionReport says what FitDecision fitted and measured, on the
 // validation rows.
 type DecisionReport struct {
