@@ -47,3 +47,29 @@ func Example() {
 	// request: [1 0 1]
 	// prep: field "site": value "west-yard": category not seen in training; check the spelling, or retrain with rows that hold this category or with unseen categories encoded as zeros
 }
+
+// Bound the one-hot block of a column with many levels. The parts column
+// (invented) has gasket ×3, valve ×2 and seal, pump, hose once each; with
+// the cap at 2, gasket and valve keep their features, and every other
+// value — a part seen in training beyond the two, or one never seen —
+// sets the one "other" feature, with no unknown-category error.
+func ExampleOptions_levelCap() {
+	cols := []prep.Column{{Name: "part", Kind: prep.Categorical,
+		Cat: []string{"gasket", "valve", "gasket", "seal", "valve", "gasket", "pump", "hose"}}}
+	p, err := prep.Fit(cols, nil, prep.Options{LevelCap: 2})
+	if err != nil {
+		fmt.Println(err)
+		return
+	}
+	fmt.Printf("%q, %d levels pooled\n", p.FeatureNames(), p.Steps[0].OtherLevels)
+	x := make([]float64, p.Width())
+	for _, part := range []string{"valve", "seal", "impeller"} {
+		_ = p.ApplyStrings([]string{part}, x)
+		fmt.Println(part, x)
+	}
+	// Output:
+	// ["part=gasket" "part=valve" "part= (other)"], 3 levels pooled
+	// valve [0 1 0]
+	// seal [0 0 1]
+	// impeller [0 0 1]
+}

@@ -43,6 +43,18 @@ type Options struct {
 	// data was read with. Nil means DefaultMissing; an empty, non-nil
 	// slice means no marker at all.
 	Missing []string
+	// LevelCap, when positive, bounds the one-hot block of a categorical
+	// column with many levels. A column with more than LevelCap distinct
+	// categories on the training rows keeps the LevelCap most frequent of
+	// them (of equal counts, the byte-wise smaller first) and gets one
+	// more feature, "other", which is 1 for every other value: a training
+	// category beyond the kept ones, and also a category never seen in
+	// training, which is then not an error and not a block of zeros,
+	// whatever UnknownAsZeros says. A column with at most LevelCap
+	// categories is encoded exactly as without the cap. The most frequent
+	// category, the fill value when imputing, is always kept. 0 keeps
+	// every category; a negative value is an error.
+	LevelCap int
 }
 
 // Pipeline is a fitted preprocessing: one Step per input column, in the
@@ -81,10 +93,11 @@ type Pipeline struct {
 // divide by and gets Scale 1, so its feature is 0 on the training rows.
 // Without standardizing, Mean is 0 and Scale 1.
 //
-// A categorical value becomes len(Categories) features: a one-hot block
-// with the 1 at the value's index in Categories, which holds the
-// categories of the training rows in sorted (byte-wise) order. Surrounding
-// spaces of a cell are ignored, as by IsMissing and ParseNumber.
+// A categorical value becomes a one-hot block with the 1 at the value's
+// index in Categories, which holds the categories of the training rows in
+// sorted (byte-wise) order. Surrounding spaces of a cell are ignored, as by
+// IsMissing and ParseNumber. The block has len(Categories) features, and
+// one more when OtherLevels is positive (see Options.LevelCap).
 type Step struct {
 	Name  string  `json:"name"`
 	Kind  Kind    `json:"kind"`
@@ -98,11 +111,31 @@ type Step struct {
 	// rows. "" otherwise.
 	FillCategory string   `json:"fill_category,omitempty"`
 	Categories   []string `json:"categories,omitempty"`
+	// OtherLevels is, for a column whose levels were capped when fitting,
+	// the number of distinct training categories left out of Categories.
+	// When it is positive the block ends with one more feature, "other",
+	// after the features of Categories; it is 1 for every value not in
+	// Categories, be it one of those levels or a category never seen in
+	// training (never an unknown-category error). 0, as in every pipeline
+	// fitted without a cap: no such feature.
+	OtherLevels int `json:"other_levels,omitempty"`
 }
 
-// width is the number of features the step writes.
-func (s *Step) width() int {
+// OtherName follows "column=" in the name of a capped column's "other"
+// feature (FeatureNames): "site= (other)". A category never has
+// surrounding spaces (Fit trims them, and Validate refuses a capped step
+// whose categories have them), so the leading space keeps the name apart
+// from the column's "column=category" features whatever the categories
+// are.
+const OtherName = " (other)"
+
+// Width returns the number of features the step writes: 1 for a numeric
+// column, the size of the one-hot block for a categorical one.
+func (s *Step) Width() int {
 	if s.Kind == Categorical {
+		if s.OtherLevels > 0 {
+			return len(s.Categories) + 1
+		}
 		return len(s.Categories)
 	}
 	return 1
@@ -181,9 +214,16 @@ var errOverflow = fmt.Errorf("%w after centring and scaling (the value is far ou
 // with a *FieldError when a training row is missing and Options.Impute is
 // false, when a numeric value is infinite, and when a column has no
 // non-missing training value.
+//
+// Fitting a categorical column holds one count per distinct training
+// category (and, with a level cap, a list of the kept ones), never
+// anything per row and category.
 func Fit(cols []Column, rows []int, o Options) (*Pipeline, error) {
 	if len(cols) == 0 {
 		return nil, errors.New("prep: Fit: no feature columns")
+	}
+	if o.LevelCap < 0 {
+		return nil, fmt.Errorf("prep: Fit: the level cap is %d; give a positive number of categories to keep per column, or 0 to keep them all", o.LevelCap)
 	}
 	n := colLen(&cols[0])
 	seen := make(map[string]bool, len(cols))
@@ -352,12 +392,18 @@ func fitCategorical(c *Column, rows []int, o Options, markers []string) (Step, e
 	if len(count) == 0 {
 		return s, &FieldError{Field: c.Name, Row: -1, Err: fmt.Errorf("%w in every training row: no category to encode", ErrMissing)}
 	}
-	s.Categories = make([]string, 0, len(count))
-	for v := range count {
-		s.Categories = append(s.Categories, v)
+	if o.LevelCap > 0 && len(count) > o.LevelCap {
+		s.Categories = mostFrequent(count, o.LevelCap)
+		s.OtherLevels = len(count) - o.LevelCap
+	} else {
+		s.Categories = make([]string, 0, len(count))
+		for v := range count {
+			s.Categories = append(s.Categories, v)
+		}
 	}
 	slices.Sort(s.Categories)
 	if o.Impute {
+		// The most frequent category ranks first, so a capped column keeps it.
 		best := -1
 		for _, v := range s.Categories { // sorted: the first of tied counts wins
 			if count[v] > best {
@@ -368,10 +414,71 @@ func fitCategorical(c *Column, rows []int, o Options, markers []string) (Step, e
 	return s, nil
 }
 
+// level is a category and its count on the training rows.
+type level struct {
+	v string
+	n int
+}
+
+// before reports whether a ranks before b among a column's levels: more
+// frequent, or as frequent and byte-wise smaller. It orders distinct
+// categories totally, so the levels kept do not depend on the order a map
+// is visited in.
+func before(a, b level) bool { return a.n > b.n || (a.n == b.n && a.v < b.v) }
+
+// mostFrequent returns the k first-ranked categories of count, k <
+// len(count), in no particular order. It keeps them in a binary heap whose
+// root is the last-ranked of them (Williams' heap, common practice, no
+// source), so it holds k levels beside the map, not one per category.
+func mostFrequent(count map[string]int, k int) []string {
+	h := make([]level, 0, k)
+	for v, n := range count {
+		l := level{v, n}
+		if len(h) < k {
+			h = append(h, l)
+			for i := len(h) - 1; i > 0; { // sift up: a parent ranks after its children
+				up := (i - 1) / 2
+				if !before(h[up], h[i]) {
+					break
+				}
+				h[up], h[i] = h[i], h[up]
+				i = up
+			}
+			continue
+		}
+		if !before(l, h[0]) {
+			continue
+		}
+		h[0] = l
+		for i := 0; ; { // sift down
+			last := i
+			if c := 2*i + 1; c < len(h) && before(h[last], h[c]) {
+				last = c
+			}
+			if c := 2*i + 2; c < len(h) && before(h[last], h[c]) {
+				last = c
+			}
+			if last == i {
+				break
+			}
+			h[i], h[last] = h[last], h[i]
+			i = last
+		}
+	}
+	out := make([]string, len(h))
+	for i := range h {
+		out[i] = h[i].v
+	}
+	return out
+}
+
 // Validate checks a pipeline decoded from a file: every step numeric or
 // categorical with a unique non-empty name, finite Mean and Fill, a finite
-// positive Scale, and non-empty, sorted, distinct Categories. The Apply
-// methods assume a valid pipeline.
+// positive Scale, and non-empty, sorted, distinct Categories. A step with
+// OtherLevels set must moreover be categorical, with a positive count,
+// categories free of surrounding spaces, and, when the pipeline imputes,
+// its FillCategory among its Categories. The Apply methods assume a valid
+// pipeline.
 func (p *Pipeline) Validate() error {
 	if len(p.Steps) == 0 {
 		return errors.New("prep: pipeline has no steps")
@@ -405,6 +512,25 @@ func (p *Pipeline) Validate() error {
 				}
 			}
 		}
+		if s.OtherLevels == 0 {
+			continue
+		}
+		// A capped column: checked only here, so that a file without the
+		// cap validates exactly as before it existed.
+		switch {
+		case s.OtherLevels < 0:
+			return bad("a negative count of levels beyond the kept categories")
+		case s.Kind != Categorical:
+			return bad("levels beyond the kept categories on a column that is not categorical")
+		}
+		for _, c := range s.Categories {
+			if strings.TrimSpace(c) != c {
+				return bad(fmt.Sprintf("category %q has surrounding spaces", c))
+			}
+		}
+		if _, ok := slices.BinarySearch(s.Categories, s.FillCategory); p.Impute && !ok {
+			return bad(fmt.Sprintf("the fill category %q is not among the kept categories", s.FillCategory))
+		}
 	}
 	return nil
 }
@@ -415,14 +541,15 @@ func finite(x float64) bool { return !math.IsNaN(x) && !math.IsInf(x, 0) }
 func (p *Pipeline) Width() int {
 	w := 0
 	for i := range p.Steps {
-		w += p.Steps[i].width()
+		w += p.Steps[i].Width()
 	}
 	return w
 }
 
 // FeatureNames returns the name of every feature, in order: the column
 // name for a numeric column, "column=category" for each one-hot feature
-// (for example "site=north-yard").
+// (for example "site=north-yard"), and "column= (other)" (OtherName) for
+// the last feature of a column whose levels were capped.
 func (p *Pipeline) FeatureNames() []string {
 	out := make([]string, 0, p.Width())
 	for i := range p.Steps {
@@ -430,6 +557,9 @@ func (p *Pipeline) FeatureNames() []string {
 		if s.Kind == Categorical {
 			for _, c := range s.Categories {
 				out = append(out, s.Name+"="+c)
+			}
+			if s.OtherLevels > 0 {
+				out = append(out, s.Name+"="+OtherName)
 			}
 		} else {
 			out = append(out, s.Name)
@@ -469,7 +599,7 @@ func (p *Pipeline) ApplyColumns(cols []Column, row int, dst []float64) error {
 		if row < 0 || row >= colLen(c) {
 			panic(fmt.Sprintf("prep: ApplyColumns: row %d out of range [0, %d) of column %q", row, colLen(c), c.Name))
 		}
-		w := s.width()
+		w := s.Width()
 		var err error
 		if s.Kind == Numeric {
 			x := c.Num[row]
@@ -502,7 +632,7 @@ func (p *Pipeline) ApplyStrings(fields []string, dst []float64) error {
 	at := 0
 	for i := range p.Steps {
 		s := &p.Steps[i]
-		w := s.width()
+		w := s.Width()
 		if err := p.encodeCell(s, fields[i], IsMissing(fields[i], p.Missing), dst[at:at+w]); err != nil {
 			return &FieldError{Field: s.Name, Row: -1, Value: fields[i], Err: err}
 		}
@@ -539,7 +669,7 @@ func (p *Pipeline) ApplyMap(fields map[string]string, dst []float64) error {
 	at := 0
 	for i := range p.Steps {
 		s := &p.Steps[i]
-		w := s.width()
+		w := s.Width()
 		v, ok := fields[s.Name]
 		if !ok && !p.Impute {
 			return &FieldError{Field: s.Name, Row: -1, Err: fmt.Errorf("%w: the row has no field of this name", ErrMissing)}
@@ -599,7 +729,7 @@ func (p *Pipeline) encodeNumber(s *Step, x float64, missing bool, dst []float64)
 }
 
 // encodeCategory is the one encoder of categorical values, shared by the
-// training and serving paths. dst has length len(s.Categories).
+// training and serving paths. dst has length s.Width().
 func (p *Pipeline) encodeCategory(s *Step, v string, missing bool, dst []float64) error {
 	clear(dst)
 	if missing {
@@ -609,13 +739,14 @@ func (p *Pipeline) encodeCategory(s *Step, v string, missing bool, dst []float64
 		v = s.FillCategory
 	}
 	j, ok := slices.BinarySearch(s.Categories, strings.TrimSpace(v))
-	if !ok {
-		if p.UnknownAsZeros {
-			return nil
-		}
+	switch {
+	case ok:
+		dst[j] = 1
+	case s.OtherLevels > 0:
+		dst[len(s.Categories)] = 1 // the "other" feature
+	case !p.UnknownAsZeros:
 		return ErrUnknownCategory
 	}
-	dst[j] = 1
 	return nil
 }
 

@@ -611,7 +611,7 @@ func FuzzApplyStrings(f *testing.F) {
 	}
 	cols := []prep.Column{num("x", -1e300, 1e-300, 1e300), cat("c", "a", "b", "b")}
 	ps := []*prep.Pipeline{}
-	for _, o := range []prep.Options{{}, {Impute: true, UnitNorm: true, UnknownAsZeros: true}, {NoStandardize: true, UnitNorm: true, Missing: []string{}}} {
+	for _, o := range []prep.Options{{}, {Impute: true, UnitNorm: true, UnknownAsZeros: true}, {NoStandardize: true, UnitNorm: true, Missing: []string{}}, {Impute: true, LevelCap: 1}} {
 		p, err := prep.Fit(cols, nil, o)
 		if err != nil {
 			f.Fatal(err)

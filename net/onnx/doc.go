@@ -23,10 +23,13 @@
 //	                           pipeline imputes, NaN marks a missing value
 //	onehot    float32 [N, m]   the one-hot blocks of the categorical
 //	                           columns, in column order, each block in the
-//	                           pipeline's category order (Step.Categories):
-//	                           exactly the features prep.Pipeline writes for
-//	                           those columns, imputation and unknown-as-
-//	                           zeros included
+//	                           pipeline's category order (Step.Categories)
+//	                           and, for a column whose levels were capped
+//	                           (Step.OtherLevels > 0), ending in its
+//	                           "other" feature: exactly the features
+//	                           prep.Pipeline writes for those columns,
+//	                           imputation, unknown-as-zeros and the other
+//	                           feature included
 //
 // An input is absent when the pipeline has no column of its kind. The
 // features, in order, and the class names are recorded as JSON arrays in
@@ -79,8 +82,11 @@
 //
 // Parts of the pipeline are not in the graph and stay the caller's job:
 // turning category strings into the one-hot blocks (the caller applies
-// prep, or builds the blocks from Step.Categories), and rejecting bad
-// rows. The graph computes on whatever it is given: a missing value
+// prep, or builds the blocks from Step.Categories: for a capped column,
+// a value not in Step.Categories, seen in training or not, sets the
+// block's last feature), and rejecting bad rows. A capped column thus
+// exports exactly: its block is one feature wider, and the graph takes
+// it as it takes any other. The graph computes on whatever it is given: a missing value
 // without imputation, an infinity or an out-of-range category yields NaN
 // or meaningless scores where package prep would return an error.
 //

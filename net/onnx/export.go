@@ -380,7 +380,7 @@ func (g *graph) pipeline(p *prep.Pipeline, width int) (string, []string, error) 
 			at++
 			continue
 		}
-		for range s.Categories {
+		for range s.Width() { // the categories' features, then any "other" feature
 			catAt = append(catAt, int64(at))
 			catNames = append(catNames, names[at])
 			at++

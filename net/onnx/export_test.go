@@ -517,3 +517,78 @@ func TestMismatchDetects(t *testing.T) {
 		}
 	}
 }
+
+// TestLevelCapExport: a pipeline with a capped column exports with the
+// other feature in the onehot input, and the graph's Concat and Gather
+// put every input value where prep puts its feature. Without
+// standardizing, prep's numeric feature is (x − 0)/1 = x, so for values
+// exact in float32 the graph's features equal prep's bit for bit; the
+// check applies Concat (axis 1) and Gather (axis 1: output column j is
+// input column indices[j]; ONNX Operators.md) to the inputs as a caller
+// builds them from prep's blocks, for rows of kept, pooled and never-seen
+// categories. onnxruntime runs the same kind of model in TestRuntime
+// ("relu-levelcap-f32").
+func TestLevelCapExport(t *testing.T) {
+	cols := []prep.Column{
+		{Name: "a", Kind: prep.Numeric, Num: []float64{0.5, -2, 3, 4.25, 1, 7, -0.75, 2}},
+		// n1 ×3, n2 ×2, then n3..n5 once each: the cap of 2 keeps n1, n2.
+		{Name: "lot", Kind: prep.Categorical, Cat: []string{"n1", "n2", "n1", "n3", "n2", "n4", "n1", "n5"}},
+		{Name: "b", Kind: prep.Numeric, Num: []float64{10, 20, 30, 40, 50, 60, 70, 80}},
+		{Name: "shift", Kind: prep.Categorical, Cat: []string{"day", "night", "day", "night", "day", "night", "day", "night"}},
+	}
+	p := fitPipeline(t, table{cols: cols, rows: 8}, prep.Options{LevelCap: 2, NoStandardize: true})
+	if s := p.Steps[1]; !slices.Equal(s.Categories, []string{"n1", "n2"}) || s.OtherLevels != 3 {
+		t.Fatalf("test premise: lot step %+v, want kept [n1 n2] and 3 others", s)
+	}
+	names := p.FeatureNames()
+	if want := []string{"a", "lot=n1", "lot=n2", "lot= (other)", "b", "shift=day", "shift=night"}; !slices.Equal(names, want) {
+		t.Fatalf("features %q, want %q", names, want)
+	}
+	n := build[float32](t, p.Width(), 1, func(b *net.Builder[float32]) { b.Readout("out", 2) })
+	b, err := Marshal(&modelfile.Model[float32]{Network: n, Pipeline: p}, Options{})
+	if err != nil {
+		t.Fatal(err)
+	}
+	m := decodeModel(t, b)
+	checkTopological(t, m)
+	if got := m.ops(); !slices.Equal(got, []string{"Concat", "Gather", "MatMul", "ArgMax"}) {
+		t.Errorf("ops %v", got)
+	}
+	if got := m.values[InputOneHot].dims; !slices.Equal(got, []string{"N", "5"}) {
+		t.Errorf("onehot dims %v, want [N 5]: lot's 2 + other + shift's 2", got)
+	}
+	var meta []string
+	if json.Unmarshal([]byte(m.meta["rhomb.features"]), &meta) != nil || !slices.Equal(meta, names) {
+		t.Errorf("metadata features %q, want %q", m.meta["rhomb.features"], names)
+	}
+	perm := m.inits["pre/order"].int64s()
+	if len(perm) != p.Width() {
+		t.Fatalf("Gather indices %v for %d features", perm, p.Width())
+	}
+	// Rows 0, 1: kept; 3, 5, 7: pooled; then the same table with lot
+	// values never seen in training.
+	unseen := slices.Clone(cols)
+	unseen[1].Cat = []string{"m1", "m2", "m3", "m4", "m5", "m6", "m7", "m8"}
+	for _, tb := range [][]prep.Column{cols, unseen} {
+		for r := range 8 {
+			want := make([]float64, p.Width())
+			if err := p.ApplyColumns(tb, r, want); err != nil {
+				t.Fatal(err)
+			}
+			// The inputs: numeric [a, b] raw, onehot prep's blocks of lot
+			// and shift (features 1..3 and 5..6).
+			joined := []float32{float32(tb[0].Num[r]), float32(tb[2].Num[r])}
+			for _, f := range []int{1, 2, 3, 5, 6} {
+				joined = append(joined, float32(want[f]))
+			}
+			for j, i := range perm {
+				if got := float64(joined[i]); math.Float64bits(got) != math.Float64bits(want[j]) {
+					t.Errorf("lot %q, row %d: graph feature %d (%s) = %v, prep %v", tb[1].Cat[r], r, j, names[j], got, want[j])
+				}
+			}
+			if other := want[3]; (tb[1].Cat[r] == "n1" || tb[1].Cat[r] == "n2") == (other == 1) {
+				t.Errorf("lot %q: other feature %v", tb[1].Cat[r], other)
+			}
+		}
+	}
+}

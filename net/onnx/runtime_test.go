@@ -10,6 +10,8 @@ import (
 	"os"
 	"os/exec"
 	"path/filepath"
+	"slices"
+	"strings"
 	"testing"
 	"time"
 
@@ -116,7 +118,7 @@ func prepare[T net.Float](t *testing.T, name string, m *modelfile.Model[T], tb t
 			for i := range p.Steps {
 				s := &p.Steps[i]
 				if s.Kind == prep.Categorical {
-					for range s.Categories {
+					for range s.Width() { // with the "other" feature of a capped column
 						cat = append(cat, float32(pre[at])) // exactly 0 or 1
 						sh.a[at] = pre[at]
 						at++
@@ -507,7 +509,67 @@ func runtimeCases(t *testing.T) []runtimeCase {
 		})
 		cases = append(cases, prepare(t, "relu-featureinput-f64", &modelfile.Model[float64]{Network: n, Pipeline: p}, mixed, Options{FeatureInput: true, ScoresOnly: true}))
 	}
+	// A categorical column with many levels capped at 4, between numeric
+	// columns: its block ends in the "other" feature, which rows of
+	// training levels beyond the kept 4 and rows of values never seen in
+	// training (put in after fitting) both set. Imputation (of the capped
+	// column too) and unit norm are on, so the other feature also goes
+	// through LpNormalization.
+	{
+		tb, p := levelCapTable(t, rng, rows)
+		n := build[float32](t, p.Width(), 8, func(b *net.Builder[float32]) {
+			b.ConstantFeature("one").Dense("h1", 16).ReLU("r1").Readout("out", 3)
+		})
+		cases = append(cases, prepare(t, "relu-levelcap-f32", &modelfile.Model[float32]{Network: n, Pipeline: p}, tb, Options{}))
+	}
 	return cases
+}
+
+// levelCapTable draws a mixed table with an added column "lot" of about
+// 30 levels, most of them rare, fits a pipeline capping it at 4 levels
+// (imputing, unit norm) on the table, and returns the table with some lot
+// values then replaced by ones never seen in training, and the pipeline.
+// It fails unless the rows hold kept, pooled, unseen and missing lots.
+func levelCapTable(t *testing.T, rng *rand.Rand, rows int) (table, *prep.Pipeline) {
+	t.Helper()
+	tb := mixedTable(rng, rows, true)
+	lot := prep.Column{Name: "lot", Kind: prep.Categorical}
+	for r := range rows {
+		v := fmt.Sprintf("lot-%02d", rng.IntN(1+rng.IntN(30))) // small numbers more often
+		if r%16 == 11 {
+			v = "NA"
+		}
+		lot.Cat = append(lot.Cat, v)
+	}
+	tb.cols = append([]prep.Column{tb.cols[0], lot}, tb.cols[1:]...)
+	p := fitPipeline(t, tb, prep.Options{LevelCap: 4, Impute: true, UnitNorm: true})
+	s := p.Steps[1]
+	if s.OtherLevels == 0 {
+		t.Fatalf("test premise: the lot column should exceed the cap: %+v", s)
+	}
+	lot.Cat = slices.Clone(lot.Cat)
+	for r := 3; r < rows; r += 7 {
+		lot.Cat[r] = fmt.Sprintf("lot-new-%d", r)
+	}
+	tb.cols[1] = lot
+	var kept, pooled, unseen, missing int
+	for _, v := range lot.Cat {
+		_, in := slices.BinarySearch(s.Categories, v)
+		switch {
+		case v == "NA":
+			missing++
+		case in:
+			kept++
+		case strings.HasPrefix(v, "lot-new-"):
+			unseen++
+		default:
+			pooled++
+		}
+	}
+	if kept == 0 || pooled == 0 || unseen == 0 || missing == 0 {
+		t.Fatalf("test premise: %d kept, %d pooled, %d unseen and %d missing lots", kept, pooled, unseen, missing)
+	}
+	return tb, p
 }
 
 // mixedTable draws invented rows: numeric columns on very different
