@@ -32,6 +32,7 @@ type config struct {
 	UnitNorm bool              `json:"unit_norm,omitempty"`
 	NewAsNil bool              `json:"unknown_as_zeros,omitempty"`
 	KeepIDs  bool              `json:"keep_ids,omitempty"`
+	LevelCap int               `json:"level_cap,omitempty"`
 	Holdout  float64           `json:"holdout"`
 	Test     float64           `json:"test"`
 	// Network.
@@ -80,6 +81,9 @@ type config struct {
 	// (-lr or -step-factor given with -resume), oldest first; LR and
 	// StepFactor above are the settings in force now.
 	StepChanges []stepChange `json:"step_changes,omitempty"`
+	// Run records the data read (by content), the command lines and the
+	// build (record.go); it is not a setting.
+	Run *runRecord `json:"run,omitempty"`
 }
 
 // stepChange is one change of the step size when a run resumed.
@@ -153,6 +157,7 @@ func (c *config) bind(fs *flag.FlagSet) {
 	fs.Var((*listFlag)(&c.Markers), "na", "comma-separated cell `values` that mean missing (default \"\",NA,NaN,null)")
 	fs.BoolVar(&c.UnitNorm, "unit-norm", c.UnitNorm, "scale every input row to unit length after encoding")
 	fs.BoolVar(&c.KeepIDs, "keep-ids", c.KeepIDs, "keep categorical columns whose values are nearly all distinct (identifiers, timestamps, free text), which are refused otherwise")
+	fs.IntVar(&c.LevelCap, "level-cap", c.LevelCap, "keep the `N` most frequent categories of each categorical column that has more than N, and encode every other value, including ones not seen in training, as one \"other\" feature (0: keep every category)")
 	fs.BoolVar(&c.NewAsNil, "unknown-zero", c.NewAsNil, "encode a category unseen in training as all zeros instead of failing")
 	fs.Float64Var(&c.Holdout, "holdout", c.Holdout, "`fraction` of rows held out for validation (stratified)")
 	fs.Float64Var(&c.Test, "test", c.Test, "`fraction` of rows held out for a final test (stratified)")
@@ -223,6 +228,8 @@ func (c *config) check() error {
 		return bad("train: -target-loss %v: want 0 (none) or a positive loss", c.Target)
 	case !(c.Rho0 >= 0) || math.IsInf(c.Rho0, 0):
 		return bad("train: -rho0 %v: want 0 (the initialization's own scale) or a positive scale", c.Rho0)
+	case c.LevelCap < 0:
+		return bad("train: -level-cap %d: want 0 (every category) or a number of categories to keep", c.LevelCap)
 	case c.Batch < 0:
 		return bad("train: -batch %d: want 0 (the whole training set) or a number of rows", c.Batch)
 	case c.Warmup < 0:

@@ -3,6 +3,7 @@ package main
 import (
 	"errors"
 	"fmt"
+	"io"
 	"os"
 
 	"github.com/rhomb/rhomb/data"
@@ -19,38 +20,56 @@ type prepared[T net.Float] struct {
 	classes          []string
 	train, val, test *data.Set[T] // val and test may be nil
 	unseen           []string     // held-out rows' categories unseen in training (recipe.Prepared.Unseen)
+	sources          []dataSource // the files read, by content
 }
 
-// prepare reads the data the settings name, splits it (stratified, seeded)
-// and encodes it with a pipeline fitted on the training rows only.
-func prepare[T net.Float](c *config) (*prepared[T], error) {
+// prepare reads the data the settings name (-data - reads stdin), hashing
+// what it reads, splits it (stratified, seeded) and encodes it with a
+// pipeline fitted on the training rows only.
+func prepare[T net.Float](c *config, stdin io.Reader) (*prepared[T], error) {
 	var t *data.Table
+	var sources []dataSource
 	if c.Images != "" {
 		var err error
 		if t, err = readIDXTable(c.Images, c.Labels); err != nil {
 			return nil, err
 		}
-	} else {
-		f, err := os.Open(c.Data)
-		if err != nil {
-			return nil, dataError{err}
+		for _, f := range [][2]string{{"-images", c.Images}, {"-labels", c.Labels}} {
+			s, err := hashFile(f[0], f[1])
+			if err != nil {
+				return nil, err
+			}
+			sources = append(sources, s)
 		}
-		defer f.Close()
-		if t, err = data.ReadCSV(f, c.Data, c.csvOptions()); err != nil {
+	} else {
+		in, name := stdin, stdinName
+		if c.Data != "-" {
+			f, err := os.Open(c.Data)
+			if err != nil {
+				return nil, dataError{err}
+			}
+			defer f.Close()
+			in, name = f, c.Data
+		}
+		h := newHashing(in)
+		var err error
+		if t, err = data.ReadCSV(h, name, c.csvOptions()); err != nil {
 			return nil, dataError{withHint(err)}
 		}
+		io.Copy(io.Discard, h) // the hash covers the whole input, even after the last row read
+		sources = append(sources, h.source("-data", c.Data))
 	}
 	r, err := recipe.Prepare[T](t, recipe.Split{Holdout: c.Holdout, Test: c.Test, Seed: c.Seed, KeepIdentifiers: c.KeepIDs, Prep: prep.Options{
-		Impute: c.Missing == "impute", UnitNorm: c.UnitNorm, UnknownAsZeros: c.NewAsNil, Missing: c.Markers,
+		Impute: c.Missing == "impute", UnitNorm: c.UnitNorm, UnknownAsZeros: c.NewAsNil, Missing: c.Markers, LevelCap: c.LevelCap,
 	}})
 	var ide *recipe.IdentifierError
 	if errors.As(err, &ide) {
-		return nil, dataError{fmt.Errorf("%w; on the command line: -skip %s leaves it out, -keep-ids keeps it", err, ide.Column)}
+		return nil, dataError{fmt.Errorf("%w; on the command line: -skip %s leaves it out, -keep-ids keeps it (add -level-cap N to bound its encoding)", err, ide.Column)}
 	}
 	if err != nil {
 		return nil, dataError{err}
 	}
-	return &prepared[T]{table: t, pipeline: r.Pipeline, classes: r.Classes, train: r.Train, val: r.Val, test: r.Test, unseen: r.Unseen}, nil
+	return &prepared[T]{table: t, pipeline: r.Pipeline, classes: r.Classes, train: r.Train, val: r.Val, test: r.Test, unseen: r.Unseen, sources: sources}, nil
 }
 
 // readIDXTable reads an images/labels pair as a table of pixel columns

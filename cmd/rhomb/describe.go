@@ -33,7 +33,7 @@ the same from release to release (fields may be added):
   classes, label, loss,
   preprocessing (absent without): features, impute, unit_norm,
     unknown_as_zeros, columns: [{name, kind ("numeric" or "categorical"),
-    mean and scale, or categories}],
+    mean and scale, or categories and other_levels}],
   training (the settings as train recorded them), figures (the final
   figures as train recorded them),
   checkpoint (absent in a model): step, epoch, steps_in_epoch.`
@@ -120,6 +120,9 @@ type (
 		Mean       *float64 `json:"mean,omitempty"`
 		Scale      *float64 `json:"scale,omitempty"`
 		Categories []string `json:"categories,omitempty"`
+		// OtherLevels is the number of training categories pooled in the
+		// column's "other" feature (-level-cap); absent when none.
+		OtherLevels int `json:"other_levels,omitempty"`
 	}
 	jsonCheckpoint struct {
 		Step         int `json:"step"`
@@ -180,7 +183,7 @@ func describeJSON[T net.Float](w io.Writer, path, dtype string, m *modelfile.Mod
 		for _, s := range p.Steps {
 			c := jsonColumn{Name: s.Name, Kind: "numeric"}
 			if s.Kind == prep.Categorical {
-				c.Kind, c.Categories = "categorical", s.Categories
+				c.Kind, c.Categories, c.OtherLevels = "categorical", s.Categories, s.OtherLevels
 			} else {
 				mean, scale := s.Mean, s.Scale
 				c.Mean, c.Scale = &mean, &scale
@@ -299,7 +302,11 @@ func describePipeline(b *strings.Builder, p *prep.Pipeline) {
 	b.WriteByte('\n')
 	for _, s := range p.Steps {
 		if s.Kind == prep.Categorical {
-			fmt.Fprintf(b, "  %-24s categorical, one-hot over %s\n", s.Name, strings.Join(s.Categories, ", "))
+			other := ""
+			if s.OtherLevels > 0 {
+				other = fmt.Sprintf(", and one \"other\" feature for the %d rarer training categories and any unseen one", s.OtherLevels)
+			}
+			fmt.Fprintf(b, "  %-24s categorical, one-hot over %s%s\n", s.Name, strings.Join(s.Categories, ", "), other)
 			continue
 		}
 		fmt.Fprintf(b, "  %-24s numeric, (x − %.6g) / %.6g\n", s.Name, s.Mean, s.Scale)

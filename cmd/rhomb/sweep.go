@@ -163,7 +163,7 @@ func sweepContext(c *config, gamma float64) (json.RawMessage, error) {
 		}
 	}
 	rec := *c
-	rec.Data, rec.Images, rec.Labels = "", "", ""
+	rec.Data, rec.Images, rec.Labels, rec.Run = "", "", "", nil
 	rec.Rho0, rec.Decay, rec.LR, rec.Temp, rec.Seed = 0, 0, 0, 0, 0
 	return json.Marshal(struct {
 		Config    json.RawMessage `json:"config"`
@@ -210,7 +210,7 @@ func sweepRun[T net.Float](e *env, c *config, ax *sweepAxes, o *sweepOptions, sh
 	if err != nil {
 		return err
 	}
-	p, err := prepare[T](c)
+	p, err := prepare[T](c, e.stdin)
 	if err != nil {
 		return err
 	}

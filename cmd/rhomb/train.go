@@ -16,7 +16,6 @@ import (
 	"syscall"
 
 	"github.com/rhomb/rhomb/data"
-	"github.com/rhomb/rhomb/data/prep"
 	"github.com/rhomb/rhomb/internal/atomicfile"
 	"github.com/rhomb/rhomb/internal/score"
 	"github.com/rhomb/rhomb/net"
@@ -70,6 +69,8 @@ type runOptions struct {
 	// (-lr given with -resume); rescale, when positive, multiplies it
 	// (-step-factor given with -resume: new factor / old).
 	newLR, rescale float64
+	// args is the command line, for the run record.
+	args []string
 }
 
 // stdinName names standard input in messages, for -data -.
@@ -84,12 +85,13 @@ func runTrain(e *env, args []string) error {
 	fs.IntVar(&o.every, "save-every", 0, "write a checkpoint every `N` epochs (one is always written on interrupt)")
 	fs.StringVar(&o.checkpoint, "checkpoint", "", "checkpoint `file` (default: the model file with .ckpt appended)")
 	fs.StringVar(&o.resume, "resume", "", "continue the run saved in this checkpoint `file`, with its settings (-epochs, and -lr or -step-factor for a smaller step, may be given again)")
-	fs.StringVar(&o.metrics, "metrics", "", "write diagnostics of every epoch as JSON Lines to this `file`")
+	fs.StringVar(&o.metrics, "metrics", "", "write every epoch's figures (loss, training and validation accuracy, ρ, ρ*, minimum margin) as JSON Lines to this `file`; a resumed run appends")
 	fs.StringVar(&o.report, "report", "", "write a self-contained HTML run report (figures, margins, ρ and ρ*, collapse, bound, cautions) to this `file`")
 	fs.BoolVar(&o.quiet, "quiet", false, "print only the final summary")
 	if err := parse(fs, args); err != nil {
 		return err
 	}
+	o.args = args
 	if o.out == "" {
 		return usageError{errors.New("train: -o names the model file to write")}
 	}
@@ -214,29 +216,6 @@ func writeErr(what, path string, err error) error {
 	return fmt.Errorf("writing the %s %s failed: %v", what, path, err)
 }
 
-// prepareInput is prepare, reading -data - from standard input.
-func prepareInput[T net.Float](e *env, c *config) (*prepared[T], error) {
-	if c.Data != "-" || c.Images != "" {
-		return prepare[T](c)
-	}
-	t, err := data.ReadCSV(e.stdin, stdinName, c.csvOptions())
-	if err != nil {
-		return nil, dataError{withHint(err)}
-	}
-	// What follows is prepare's own, from the table on.
-	r, err := recipe.Prepare[T](t, recipe.Split{Holdout: c.Holdout, Test: c.Test, Seed: c.Seed, KeepIdentifiers: c.KeepIDs, Prep: prep.Options{
-		Impute: c.Missing == "impute", UnitNorm: c.UnitNorm, UnknownAsZeros: c.NewAsNil, Missing: c.Markers,
-	}})
-	var ide *recipe.IdentifierError
-	if errors.As(err, &ide) {
-		return nil, dataError{fmt.Errorf("%w; on the command line: -skip %s leaves it out, -keep-ids keeps it", err, ide.Column)}
-	}
-	if err != nil {
-		return nil, dataError{err}
-	}
-	return &prepared[T]{table: t, pipeline: r.Pipeline, classes: r.Classes, train: r.Train, val: r.Val, test: r.Test, unseen: r.Unseen}, nil
-}
-
 // divergence reports whether err says the run diverged, and how, in the
 // command line's words.
 func divergence(err error) (bool, string) {
@@ -301,10 +280,21 @@ func train[T net.Float](e *env, c *config, o *runOptions) error {
 			return err
 		}
 	}
-	p, err := prepareInput[T](e, c)
+	p, err := prepare[T](c, e.stdin)
 	if err != nil {
 		return err
 	}
+	// The run record: the data by content (a resumed run must read the
+	// same), every command line that trained the model, and the build.
+	rec := newRunRecord(o.args)
+	if o.resume != "" && c.Run != nil {
+		if err := sameData(o.resume, c.Run.Data, p.sources); err != nil {
+			return err
+		}
+		rec.Commands = append(c.Run.Commands, rec.Commands...)
+	}
+	rec.Data = p.sources
+	c.Run = rec
 	if m, _ := recipe.ParseMetric(c.Metric); m == recipe.AUC && p.train.Outputs != 1 {
 		return usageError{fmt.Errorf("train: -metric auc ranks the scores of a two-class model, and the data has %d classes: use -metric balanced or -metric macro-f1", len(p.classes))}
 	}
@@ -389,14 +379,20 @@ func train[T net.Float](e *env, c *config, o *runOptions) error {
 		}
 		last.state = sess.Trainer().State()
 	}
-	var jsonl *optim.Hooks
+	// -metrics: one line per epoch with what the console shows; a resumed
+	// run appends to the file, so the epochs before the stop stay in it.
+	var metricsOut *json.Encoder
 	if o.metrics != "" {
-		f, err := os.Create(o.metrics)
+		flags := os.O_WRONLY | os.O_CREATE | os.O_TRUNC
+		if o.resume != "" {
+			flags = os.O_WRONLY | os.O_CREATE | os.O_APPEND
+		}
+		f, err := os.OpenFile(o.metrics, flags, 0o644)
 		if err != nil {
-			return err
+			return writeErr("metrics", o.metrics, err)
 		}
 		defer f.Close()
-		jsonl = optim.JSONLines(f, 0)
+		metricsOut = json.NewEncoder(f)
 	}
 	var rep reporter
 	var track stepTracker
@@ -418,12 +414,13 @@ func train[T net.Float](e *env, c *config, o *runOptions) error {
 		Epoch: func(r *recipe.EpochReport) error {
 			snapshot()
 			ei := r.Info
-			rep.epoch(epochLine{epoch: ei.Epoch + 1, epochs: sess.Plan().Epochs, loss: ei.Loss,
+			line := epochLine{epoch: ei.Epoch + 1, epochs: sess.Plan().Epochs, loss: ei.Loss,
 				trainAcc: 1 - float64(ei.Full.Negative)/float64(ei.Full.Rows), valAcc: valAccuracy(p.val, r),
-				rho: ei.Rho, rhoStar: track.rhoStar, minMargin: ei.Full.Min, elapsed: ei.Elapsed, best: r.Best})
-			if jsonl != nil {
-				if err := jsonl.Epoch(ei); err != nil {
-					return err
+				rho: ei.Rho, rhoStar: track.rhoStar, minMargin: ei.Full.Min, elapsed: ei.Elapsed, best: r.Best}
+			rep.epoch(line)
+			if metricsOut != nil {
+				if err := metricsOut.Encode(newMetricsRecord(line, o.resume != "")); err != nil {
+					return writeErr("metrics", o.metrics, err)
 				}
 			}
 			if o.every > 0 && (ei.Epoch+1)%o.every == 0 {
