@@ -171,3 +171,22 @@ func TestSmoothReLUClosedForms(t *testing.T) {
 		t.Error("CheckSharpness accepted a sharpness whose value at 0 overflows, or a non-positive one")
 	}
 }
+
+// TestPredictionSet: the classes with 1 − p ≤ q, in order (the textbook
+// split-conformal set, worked by hand here), or the most probable class
+// when none qualifies.
+func TestPredictionSet(t *testing.T) {
+	p := []float64{0.15, 0.6, 0.25}
+	for _, tc := range []struct {
+		q    float64
+		want []int
+	}{{0.9, []int{0, 1, 2}}, {0.8, []int{1, 2}}, {0.4, []int{1}}, {0.3, []int{1}}, {0, []int{1}}} {
+		// 1 − p = 0.85, 0.4, 0.75: q = 0.9 takes all three, 0.8 the last
+		// two, 0.4 only the middle one, and 0.3 or 0 none, so the most
+		// probable class (1) stands alone.
+		got := arith.PredictionSet(p, tc.q, nil)
+		if fmt.Sprint(got) != fmt.Sprint(tc.want) {
+			t.Errorf("q = %v: %v, want %v", tc.q, got, tc.want)
+		}
+	}
+}

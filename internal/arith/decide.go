@@ -77,3 +77,26 @@ func Decide(s []float64, threshold float64) int {
 	}
 	return c
 }
+
+// PredictionSet appends to dst the classes of a split-conformal
+// prediction set at quantile q: every class j with 1 − p_j ≤ q (Vovk et
+// al. 2005, in the form of Angelopoulos and Bates 2021, §1; from memory),
+// and, when no class qualifies, the most probable one, so that a set is
+// never empty. Adding a class only makes a set larger, so the coverage
+// guarantee of the textbook set still holds.
+func PredictionSet(p []float64, q float64, dst []int) []int {
+	n := len(dst)
+	top := 0
+	for j, pj := range p {
+		if 1-pj <= q {
+			dst = append(dst, j)
+		}
+		if pj > p[top] {
+			top = j
+		}
+	}
+	if len(dst) == n {
+		dst = append(dst, top)
+	}
+	return dst
+}

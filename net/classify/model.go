@@ -132,7 +132,9 @@ type Answer struct {
 	Probabilities []float64
 	// Set is the split-conformal prediction set, the indices of the
 	// classes in it in increasing order, when the model file holds one;
-	// nil otherwise. It belongs to the Work.
+	// nil otherwise. It is never empty: when no class is likely enough,
+	// it holds the most probable one (arith.PredictionSet). It belongs to
+	// the Work.
 	Set []int
 	// Abstained reports that the model declines to answer this row: its
 	// normalized margin is below the floor fitted for the model's target
@@ -271,13 +273,7 @@ func (m *Model) answer(w *Work, s []float64, row int) (Answer, error) {
 		}
 		a.Probabilities = p
 		if sets := d.Sets; sets != nil {
-			set := w.sets[row*k : row*k]
-			for j, pj := range p {
-				if 1-pj <= sets.Quantile {
-					set = append(set, j)
-				}
-			}
-			a.Set = set
+			a.Set = arith.PredictionSet(p, sets.Quantile, w.sets[row*k:row*k])
 		}
 	}
 	if ab := d.Abstain; ab != nil && a.Margin < ab.MarginFloor {

@@ -219,14 +219,14 @@ func FitDecision[T net.Float](file *modelfile.Model[T], val *data.Set[T], o Deci
 			q := min(calib.ConformalThreshold(non, 1-o.Coverage), 1)
 			d.Sets = &schema.Sets{Coverage: o.Coverage, Quantile: q}
 			covered, size := 0, 0
+			var set []int
 			for _, r := range half[1] {
 				probs(r, p, d.Calibration)
-				for j := range p {
-					if 1-p[j] <= q {
-						size++
-						if j == truth[r] {
-							covered++
-						}
+				set = arith.PredictionSet(p, q, set[:0])
+				size += len(set)
+				for _, j := range set {
+					if j == truth[r] {
+						covered++
 					}
 				}
 			}
