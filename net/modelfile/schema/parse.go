@@ -57,6 +57,9 @@ type Param struct {
 func Parse(b []byte, source string) (*File, error) {
 	p := &parser{source: source}
 	cf, err := container.Parse(b, func(raw []byte) ([]container.Tensor, error) {
+		if err := prescan(raw); err != nil {
+			return nil, err
+		}
 		if err := decodeStrict(raw, &p.f.Header); err != nil {
 			return nil, err
 		}
