@@ -183,9 +183,10 @@ func (w *Net[T]) Params() []*net.Param[T] { return w.params }
 // Rho returns the network's scale ρ = ∏‖W_k‖_F over all dense layers.
 func (w *Net[T]) Rho() float64 { return w.base.Rho() }
 
-// Forward writes W = ρ·V into the wrapped network and runs it.
+// Forward runs the wrapped network, whose W = ρ·V are current: Wrap,
+// Constrain (which the trainer calls after every update) and Sync write
+// them. After writing ρ or V yourself, call Sync before Forward.
 func (w *Net[T]) Forward(x []T, rows int) []T {
-	w.sync()
 	return w.base.Forward(x, rows)
 }
 
@@ -240,7 +241,11 @@ func (w *Net[T]) direction(g, v, gv []T, s float64) {
 // Constrain returns the directions to the unit sphere after an update
 // (always under Projection, unless NoRetraction under Multiplier). The
 // trainer in package optim calls it after every step.
+//
+// Either way it then writes W = ρ·V, so the wrapped network's weights are
+// current after every update.
 func (w *Net[T]) Constrain() {
+	defer w.sync()
 	if w.opts.Hold == Multiplier && w.opts.NoRetraction {
 		return
 	}
@@ -284,10 +289,9 @@ func (w *Net[T]) DirectionNorms(dst []float64) []float64 {
 	return dst
 }
 
-// Sync writes W = ρ·V into the wrapped network now. Forward does this by
-// itself; call Sync after changing the parameters' values when the wrapped
-// network's W must be current without a forward pass (before saving it,
-// say).
+// Sync writes W = ρ·V into the wrapped network now. Wrap and Constrain
+// (after every update) do this by themselves; call Sync after writing
+// the parameters' values yourself (optim.SetParams does).
 func (w *Net[T]) Sync() { w.sync() }
 
 // Options returns the options the wrapper was made with.

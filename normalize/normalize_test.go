@@ -75,7 +75,7 @@ func TestWrapKeepsTheFunction(t *testing.T) {
 
 // TestGradients checks every mode's scale and direction gradients against
 // central differences of the square loss computed through the wrapper
-// (W = ρ·V is rebuilt from the perturbed parameters by Forward). Under
+// (W = ρ·V is rebuilt from the perturbed parameters by Sync). Under
 // Projection the direction gradient is the plain one; under Multiplier it
 // is the plain one projected onto the tangent space of the sphere
 // (REFERENCES.md, weight-normalized dynamics).
@@ -92,7 +92,7 @@ func TestGradients(t *testing.T) {
 		}
 		sq.Eval(w.Forward(x, rows), y, rows, 3, g)
 		w.Backward(g)
-		objective := func() float64 { return sq.Eval(w.Forward(x, rows), y, rows, 3, g) }
+		objective := func() float64 { w.Sync(); return sq.Eval(w.Forward(x, rows), y, rows, 3, g) }
 		for _, p := range w.Params() {
 			grad := append([]float64(nil), p.Grad...)
 			v0 := append([]float64(nil), p.Value...)

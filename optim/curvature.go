@@ -237,6 +237,7 @@ func Sharpness[T net.Float](m Model[T], l loss.Func[T], x, y []T, rows int, s Sh
 			off += copy(p.Value, store[off:off+len(p.Value)])
 			off += copy(p.Grad, store[off:off+len(p.Grad)])
 		}
+		Resync(m)
 	}()
 
 	off = 0
@@ -280,6 +281,7 @@ func Sharpness[T net.Float](m Model[T], l loss.Func[T], x, y []T, rows int, s Sh
 			}
 			off += len(p.Value)
 		}
+		Resync(m)
 		out := m.Forward(x, rows)
 		if lv := l.Eval(out, y, rows, cols, gout); math.IsNaN(lv) || math.IsInf(lv, 0) {
 			return &SharpnessError{Iteration: it, What: "loss", Index: -1, Value: lv}

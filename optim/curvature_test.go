@@ -88,6 +88,7 @@ func cvObjective(m optim.Model[float64], x, y []float64, rows int, lambda float6
 	cols := m.Base().Out()
 	return func(theta []float64) float64 {
 		cvSetFlat(ps, theta)
+		optim.Resync(m) // parameters written directly: bring W = ρ·V up to date
 		l := loss.Square[float64]{}.Eval(m.Forward(x, rows), y, rows, cols, nil)
 		off := 0
 		for _, p := range ps {

@@ -30,17 +30,32 @@ type Model[T net.Float] interface {
 // every update (normalize.Net returns its directions to the sphere).
 type Constrained interface{ Constrain() }
 
-// syncer is implemented by models whose base network's weights are
-// brought up to date lazily (normalize.Net writes W = ρ·V at Forward).
-type syncer interface{ Sync() }
+// Synced is implemented by models whose base network's weights are
+// derived from their own parameters (normalize.Net: W = ρ·V). The trainer
+// keeps them current: Constrain brings them up to date after every
+// update. Code that writes parameter values itself calls Resync (or
+// SetParams) afterwards.
+type Synced interface{ Sync() }
 
-// baseRho returns ρ of the model's current weights.
-func (t *Trainer[T]) baseRho() float64 {
-	if s, ok := t.model.(syncer); ok {
+// Resync brings m's derived weights up to date with its parameters, for a
+// model that has any (Synced); it is a no-op for a plain network.
+func Resync[T net.Float](m Model[T]) {
+	if s, ok := m.(Synced); ok {
 		s.Sync()
 	}
-	return t.model.Base().Rho()
 }
+
+// SetParams copies values into m's parameters, in Params order, and
+// brings its derived weights up to date.
+func SetParams[T net.Float](m Model[T], values [][]T) {
+	for i, p := range m.Params() {
+		copy(p.Value, values[i])
+	}
+	Resync(m)
+}
+
+// baseRho returns ρ of the model's current weights.
+func (t *Trainer[T]) baseRho() float64 { return t.model.Base().Rho() }
 
 // directionNormer is implemented by models that hold directions of their
 // own, whose norms the hooks report.
@@ -194,6 +209,10 @@ func NewTrainer[T net.Float](m Model[T], l loss.Func[T], set *data.Set[T], s Set
 // weights are those after the last whole step, and Run returns ctx.Err().
 func (t *Trainer[T]) Run(ctx context.Context) (Result, error) {
 	t.started = time.Now()
+	// Parameters written before the run (a restored checkpoint, copied
+	// weights) take effect: derived weights are brought up to date once;
+	// after that every update keeps them current.
+	Resync(t.model)
 	for t.epoch < t.s.Epochs {
 		for t.inEpoch < t.stepsPerEpoch {
 			if err := ctx.Err(); err != nil {
@@ -372,6 +391,7 @@ func (t *Trainer[T]) update(lr float64) error {
 				copy(t.vel[i], t.savedVel[i])
 			}
 		}
+		Resync(t.model)
 		return bad
 	}
 	return nil

@@ -511,15 +511,11 @@ func train[T net.Float](e *env, c *config, o *runOptions) error {
 		kept := make([][]T, len(ps))
 		for i, p := range ps {
 			kept[i] = append([]T(nil), p.Value...)
-			copy(p.Value, last.params[i])
 		}
-		syncModel(model)
+		optim.SetParams(model, last.params)
 		st := last.state
 		serr := modelfile.Save(o.checkpoint, bundle(&st))
-		for i, p := range ps {
-			copy(p.Value, kept[i])
-		}
-		syncModel(model)
+		optim.SetParams(model, kept)
 		return serr
 	}
 	if diverged {
@@ -619,7 +615,7 @@ func train[T net.Float](e *env, c *config, o *runOptions) error {
 				title = "rhomb run report: " + stdinName
 			}
 		}
-		if err := rr.write(o.report, title, o.source, o.notes, c, p, model, n, res, val, test); err != nil {
+		if err := rr.write(o.report, title, o.source, o.notes, c, p, model, n, res, val, test, saved); err != nil {
 			return fmt.Errorf("report: %w", err)
 		}
 		fmt.Fprintf(w, "\nreport written to %s\n", o.report)
@@ -781,14 +777,6 @@ func warnImbalance[T net.Float](w io.Writer, p *prepared[T]) {
 			fmt.Fprintf(w, "note: class %q holds %.1f%% of the training rows (%d; the largest class %d); -balance weights the classes and -metric balanced ranks epochs by balanced accuracy\n",
 				p.classes[k], 100*float64(n)/float64(p.train.Rows), n, most)
 		}
-	}
-}
-
-// syncModel brings a normalized model's weights up to date after its
-// parameters were set, as the training procedure does.
-func syncModel[T net.Float](m optim.Model[T]) {
-	if sy, ok := m.(interface{ Sync() }); ok {
-		sy.Sync()
 	}
 }
 

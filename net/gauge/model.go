@@ -37,7 +37,6 @@ func sweep[T net.Float](m Model[T], set *data.Set[T], visit func(start, rows int
 	if set.Features != base.In() || set.Outputs != base.Out() {
 		return 0, fmt.Errorf("gauge: the data has %d features and %d target columns, the network takes %d and gives %d", set.Features, set.Outputs, base.In(), base.Out())
 	}
-	syncW(m)
 	rho := base.Rho()
 	if !(rho > 0) {
 		return 0, ErrNoScale
@@ -63,12 +62,3 @@ func classes(outputs int) int {
 // one output (1 if positive), the largest output otherwise (the first on a
 // tie). It reads the same way as data.ClassOf reads a target row.
 func decide[T net.Float](out []T) int { return data.ClassOf(out) }
-
-// syncW brings the base network's W up to date with the model's own
-// parameters (normalize.Net writes W = ρ·V only when it runs Forward, so
-// after an update W lags until then).
-func syncW[T net.Float](m Model[T]) {
-	if s, ok := m.(interface{ Sync() }); ok {
-		s.Sync()
-	}
-}

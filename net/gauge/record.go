@@ -216,7 +216,6 @@ func (r *Recorder[T]) Measure() (Record, error) {
 	nan := math.NaN()
 	rec := Record{Epoch: -1, Loss: nan, Rho: nan, RhoStarMean: nan, GapMean: nan, SpeedMean: nan, TrainError: nan, TestError: nan, Equilibrium: r.eq.Last()}
 	if r.o.Model != nil {
-		syncW(r.o.Model)
 		rec.Rho = r.o.Model.Base().Rho()
 	}
 	return rec, r.measure(&rec)

@@ -78,7 +78,6 @@ func EffectiveRank(sigma []float64) float64 {
 // Spectra returns the spectrum of every dense layer of the model's
 // network, in order (the readout last), from W as the model holds it now.
 func Spectra[T net.Float](m Model[T]) ([]Spectrum, error) {
-	syncW(m)
 	var out []Spectrum
 	for _, d := range m.Base().Dense() {
 		w := make([]float64, len(d.W.Value))

@@ -426,12 +426,7 @@ func (s *Session[T]) keepGood() {
 // rollBack returns the weights and the trainer to the last epoch
 // boundary.
 func (s *Session[T]) rollBack() error {
-	for i, p := range s.model.Params() {
-		copy(p.Value, s.good[i])
-	}
-	if sy, ok := s.model.(interface{ Sync() }); ok {
-		sy.Sync()
-	}
+	optim.SetParams(s.model, s.good)
 	return s.tr.Restore(s.goodState)
 }
 
@@ -441,14 +436,7 @@ func (s *Session[T]) keepBest() {
 	}
 }
 
-func (s *Session[T]) restoreBest() {
-	for i, p := range s.model.Params() {
-		copy(p.Value, s.best[i])
-	}
-	if sy, ok := s.model.(interface{ Sync() }); ok {
-		sy.Sync()
-	}
-}
+func (s *Session[T]) restoreBest() { optim.SetParams(s.model, s.best) }
 
 // score measures the validation rows with forward passes only.
 func (s *Session[T]) score(epoch int, rate float64) Score {
