@@ -1,16 +1,22 @@
 package main
 
 import (
+	"bytes"
 	"encoding/json"
 	"fmt"
 	"slices"
 	"strings"
 
+	"github.com/rhomb/rhomb/data"
+	"github.com/rhomb/rhomb/internal/calib"
 	"github.com/rhomb/rhomb/internal/score"
 	"github.com/rhomb/rhomb/loss"
 	"github.com/rhomb/rhomb/net"
+	"github.com/rhomb/rhomb/net/classify"
 	"github.com/rhomb/rhomb/net/gauge"
+	"github.com/rhomb/rhomb/net/gauge/plot"
 	htmlreport "github.com/rhomb/rhomb/net/gauge/report"
+	"github.com/rhomb/rhomb/net/modelfile"
 	"github.com/rhomb/rhomb/optim"
 )
 
@@ -74,9 +80,11 @@ func (r *runReport[T]) hooks() *optim.Hooks {
 	return optim.Join(r.rec.Hooks(), r.track.Hooks())
 }
 
-// write measures the final weights and writes the report to path.
+// write measures the final weights and writes the report to path; saved
+// is the model file as it is saved, whose calibration, if any, the report
+// shows on the held-out rows.
 func (r *runReport[T]) write(path, title, source string, notes []string, c *config, p *prepared[T], model optim.Model[T],
-	n *net.Network[T], res optim.Result, val, test *score.Confusion) error {
+	n *net.Network[T], res optim.Result, val, test *score.Confusion, saved *modelfile.Model[T]) error {
 	var confusions []htmlreport.Confusion
 	for _, s := range []struct {
 		name string
@@ -105,6 +113,13 @@ func (r *runReport[T]) write(path, title, source string, notes []string, c *conf
 	if r.track != nil {
 		run.HeldoutLoss = r.track.Loss
 	}
+	held := p.val
+	if held == nil {
+		held = p.test
+	}
+	if run.Calibration, err = reliabilityOf(saved, held, r.heldout); err != nil {
+		return err
+	}
 	if r.bound != nil {
 		// The bound beside the test error when there is a test split,
 		// else beside the validation error, named as such.
@@ -118,6 +133,70 @@ func (r *runReport[T]) write(path, title, source string, notes []string, c *conf
 		run.BoundSet = name
 	}
 	return htmlreport.WriteFile(path, run)
+}
+
+// reliabilityOf returns the reliability diagram's data for the saved
+// model's calibrated probabilities on the rows of set (named name), or nil
+// when the model holds no calibration or there are no rows. Each row is
+// answered as every serving tool answers it: the model file is encoded to
+// bytes and read back with package net/classify, and each row's feature
+// vector classified. As rhomb check measures it, a row's confidence is
+// its largest calibrated probability and it counts as right when the
+// model's answer (Answer.Class, after any decision threshold) is its
+// class; the rows are put into eceBins equal bins (calib.Reliability).
+// The uncalibrated map of the same scores, p = (1 + clamp(s, −1, 1))/2 for
+// one signed score and softmax(s) for several (as recipe.FitDecision
+// compares it), is binned beside it with the same answers.
+func reliabilityOf[T net.Float](saved *modelfile.Model[T], set *data.Set[T], name string) (*plot.Calibration, error) {
+	if saved == nil || saved.Decision == nil || saved.Decision.Calibration == nil || set == nil || set.Rows == 0 {
+		return nil, nil
+	}
+	var buf bytes.Buffer
+	if err := modelfile.Write(&buf, saved); err != nil {
+		return nil, err
+	}
+	cm, err := classify.Read(buf.Bytes(), "the saved model")
+	if err != nil {
+		return nil, err
+	}
+	x := make([]float64, len(set.X))
+	for i, v := range set.X {
+		x[i] = float64(v)
+	}
+	answers := make([]classify.Answer, set.Rows)
+	if err := cm.ClassifyVectors(nil, x, set.Rows, answers); err != nil {
+		return nil, fmt.Errorf("classifying the %s rows with the saved model: %w", name, err)
+	}
+	conf := make([]float64, set.Rows)
+	raw := make([]float64, set.Rows)
+	correct := make([]bool, set.Rows)
+	var p []float64
+	for r, a := range answers {
+		conf[r] = slices.Max(a.Probabilities)
+		correct[r] = a.Class == set.Class(r)
+		if s := a.Scores; len(s) == 1 {
+			p1 := (1 + max(-1, min(1, s[0]))) / 2
+			raw[r] = max(p1, 1-p1)
+		} else {
+			p = slices.Grow(p[:0], len(s))[:len(s)]
+			calib.Softmax(s, 1, p)
+			raw[r] = slices.Max(p)
+		}
+	}
+	c := &plot.Calibration{Set: name, Method: calibrationName(saved.Decision.Calibration.Kind),
+		Bins: binsOf(calib.Reliability(conf, correct, eceBins)), Uncalibrated: binsOf(calib.Reliability(raw, correct, eceBins))}
+	if name == "validation" {
+		c.Note = "The calibration was fitted on half of these rows, which also chose the kept epoch, so it looks somewhat better here than on new rows; rhomb check on rows the run never saw measures it fairly."
+	}
+	return c, nil
+}
+
+func binsOf(bins []calib.Bin) []plot.ReliabilityBin {
+	out := make([]plot.ReliabilityBin, len(bins))
+	for i, b := range bins {
+		out[i] = plot.ReliabilityBin{Lo: b.Lo, Hi: b.Hi, Rows: b.Rows, Confidence: b.Confidence, Accuracy: b.Accuracy}
+	}
+	return out
 }
 
 // reportSettings lists the run's training record (the settings stored in

@@ -615,7 +615,7 @@ func train[T net.Float](e *env, c *config, o *runOptions) error {
 				title = "rhomb run report: " + stdinName
 			}
 		}
-		if err := rr.write(o.report, title, o.source, o.notes, c, p, model, n, res, val, test); err != nil {
+		if err := rr.write(o.report, title, o.source, o.notes, c, p, model, n, res, val, test, saved); err != nil {
 			return fmt.Errorf("report: %w", err)
 		}
 		fmt.Fprintf(w, "\nreport written to %s\n", o.report)

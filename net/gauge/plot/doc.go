@@ -17,6 +17,13 @@
 // All makes every figure the history allows, in that order; package
 // report puts them into an HTML page.
 //
+// One figure is drawn from other data than a History: Reliability, the
+// reliability diagram of a model's calibrated probabilities (Calibration:
+// the bins of the top-class probability on labelled rows, with the
+// uncalibrated map's beside them), whose caption states the expected
+// calibration error (ECE). Points below its diagonal mean the model is
+// overconfident there.
+//
 // # Reading the figures
 //
 // Every axis says what it measures and in which unit: epochs completed,

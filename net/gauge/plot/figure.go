@@ -122,14 +122,21 @@ const (
 var errNoData = errors.New("no data")
 
 // ErrNoData reports that the History lacks what a figure needs (a measure
-// that was not asked for, or a run with no epochs); All skips such figures.
+// that was not asked for, or a run with no epochs), or that a figure drawn
+// from other data (Reliability) was given none; All skips such figures.
 type ErrNoData struct {
 	Figure string // the figure's Name
 	Need   string // what was missing, in the words of gauge.RecorderOptions
+	// In names what lacked it; empty means "the history".
+	In string
 }
 
 func (e *ErrNoData) Error() string {
-	return fmt.Sprintf("plot: figure %q: the history has no %s", e.Figure, e.Need)
+	in := e.In
+	if in == "" {
+		in = "the history"
+	}
+	return fmt.Sprintf("plot: figure %q: %s has no %s", e.Figure, in, e.Need)
 }
 
 func (e *ErrNoData) Unwrap() error { return errNoData }

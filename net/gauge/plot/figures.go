@@ -86,7 +86,7 @@ func Error(h *gauge.History, o Options) (*Figure, error) {
 		return nil, err
 	}
 	if !a && !b {
-		return nil, &ErrNoData{"error", "Train or Test set (whole-set margins)"}
+		return nil, &ErrNoData{Figure: "error", Need: "Train or Test set (whole-set margins)"}
 	}
 	p.Y.Min = 0
 	return single("error", "Classification error per epoch",
@@ -130,7 +130,7 @@ func Loss(h *gauge.History, o Options) (*Figure, error) {
 		}
 	}
 	if !a && !b {
-		return nil, &ErrNoData{"loss", "epochs"}
+		return nil, &ErrNoData{Figure: "loss", Need: "epochs"}
 	}
 	// Headroom above the curves for the legend, which would otherwise sit
 	// on a loss that starts high: a quarter of the range on a linear axis,
@@ -188,7 +188,7 @@ func Scale(h *gauge.History, o Options) (*Figure, error) {
 		return nil, err
 	}
 	if !(hi >= lo) {
-		return nil, &ErrNoData{"scale", "steps or epochs"}
+		return nil, &ErrNoData{Figure: "scale", Need: "steps or epochs"}
 	}
 	p.X.Min, p.Y.Min = 0, 0
 	if h.EquilibriumStep > 0 {
@@ -249,7 +249,7 @@ func Margins(h *gauge.History, o Options) (*Figure, error) {
 		drawn = drawn || ok
 	}
 	if !drawn {
-		return nil, &ErrNoData{"margins", "Train or Test set (whole-set margins)"}
+		return nil, &ErrNoData{Figure: "margins", Need: "Train or Test set (whole-set margins)"}
 	}
 	hline(p, 0, "0: the decision boundary")
 	p.Legend.Top = false
@@ -278,7 +278,7 @@ func MarginHistogram(h *gauge.History, o Options) (*Figure, error) {
 		last = r
 	}
 	if last == nil {
-		return nil, &ErrNoData{"histogram", "Train set (whole-set margins)"}
+		return nil, &ErrNoData{Figure: "histogram", Need: "Train set (whole-set margins)"}
 	}
 	// Two panels, each on its own margin axis: at the start the margins
 	// crowd around 0 and the recorder's bins follow each set of margins,
@@ -368,7 +368,7 @@ func Collapse(h *gauge.History, o Options) (*Figure, error) {
 		drawn = drawn || ok
 	}
 	if !drawn {
-		return nil, &ErrNoData{"collapse", "Collapse measures"}
+		return nil, &ErrNoData{Figure: "collapse", Need: "Collapse measures"}
 	}
 	if isLog {
 		// Room below the curves for the legend: two decades under the
@@ -419,7 +419,7 @@ func Spectra(h *gauge.History, o Options) (*Figure, error) {
 		}
 	}
 	if first == nil {
-		return nil, &ErrNoData{"spectra", "Spectra"}
+		return nil, &ErrNoData{Figure: "spectra", Need: "Spectra"}
 	}
 	p := newPanel("Singular values of each layer's direction V_k", "index i (largest first)", "singular value σ_i")
 	draw := func(s []gauge.Spectrum, when string, dashed bool) error {

@@ -2,7 +2,10 @@
 // the settings, a summary of the data (rows, classes, missing values and
 // what was done with them), the final figures, the confusion matrices,
 // the margin bound beside the measured test error, the figures of package
-// plot and the cautions that go with all of these.
+// plot and the cautions that go with all of these. When the Run carries
+// the saved model's calibration (Run.Calibration), the page also has a
+// calibration section: the reliability diagram (plot.Reliability) and
+// the expected calibration error.
 //
 // # Use
 //
@@ -30,7 +33,8 @@
 // ten years. It is also well-formed XML (XHTML syntax: void elements
 // closed, only XML's own entities), so a tool without an HTML parser can
 // read its numbers: every value of the summary and the bound has an id
-// (g-…, b-…), and the per-epoch table has one row per epoch.
+// (g-…, b-…, and c-… in the calibration section), and the per-epoch
+// table has one row per epoch.
 //
 // Numbers show four significant digits, error rates and accuracies a
 // percentage with two decimals; a dash means "not measured".

@@ -11,6 +11,7 @@ import (
 	"github.com/rhomb/rhomb/loss"
 	"github.com/rhomb/rhomb/net"
 	"github.com/rhomb/rhomb/net/gauge"
+	"github.com/rhomb/rhomb/net/gauge/plot"
 	"github.com/rhomb/rhomb/optim"
 )
 
@@ -51,6 +52,11 @@ type Run struct {
 	BoundSet string
 	// Confusion holds the confusion matrices to show, in order.
 	Confusion []Confusion
+	// Calibration, when not nil, is the reliability of the saved model's
+	// calibrated probabilities on some labelled rows; the report then has
+	// a calibration section with its reliability diagram
+	// (plot.Reliability) and expected calibration error.
+	Calibration *plot.Calibration
 	// Notes are cautions about this run's data, shown first among the
 	// cautions (say, that demo data are invented).
 	Notes []string
@@ -225,9 +231,6 @@ func (l *LossTrack[T]) Hooks() *optim.Hooks {
 func SetLoss[T net.Float](m gauge.Model[T], lf loss.Func[T], set *data.Set[T]) float64 {
 	if set == nil || set.Rows == 0 {
 		return math.NaN()
-	}
-	if s, ok := m.(interface{ Sync() }); ok {
-		s.Sync()
 	}
 	const chunk = 256
 	var sum float64

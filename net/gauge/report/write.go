@@ -96,6 +96,18 @@ type view struct {
 	EpochRows []epochView
 	Cautions  []string
 	Glance    []glance
+	// Reliability is the calibration section, nil without Run.Calibration.
+	Reliability *reliabilityView
+}
+
+type reliabilityView struct {
+	Figure      figureView
+	Set, Method string
+	Rows, Bins  int
+	// ECE and RawECE (when HasRaw) as plot.ECE computes them from the
+	// bins.
+	ECE, RawECE float64
+	HasRaw      bool
 }
 
 type figureView struct {
@@ -165,13 +177,32 @@ func build(r *Run) (*view, error) {
 		return nil, err
 	}
 	for _, f := range figs {
-		png, err := f.Bytes(plot.PNG)
+		fv, err := figureOf(f)
 		if err != nil {
-			return nil, fmt.Errorf("report: figure %s: %w", f.Name, err)
+			return nil, err
 		}
-		wd, ht := f.PixelSize()
-		v.Figures = append(v.Figures, figureView{Name: f.Name, Title: f.Title, Caption: f.Caption, Alt: f.Title,
-			Src: template.URL("data:image/png;base64," + base64.StdEncoding.EncodeToString(png)), Width: wd, Height: ht})
+		v.Figures = append(v.Figures, fv)
+	}
+	if c := r.Calibration; c != nil {
+		f, err := plot.Reliability(*c)
+		if err != nil {
+			return nil, fmt.Errorf("report: %w", err)
+		}
+		fv, err := figureOf(f)
+		if err != nil {
+			return nil, err
+		}
+		rv := &reliabilityView{Figure: fv, Set: c.Set, Method: c.Method, Bins: len(c.Bins), ECE: plot.ECE(c.Bins)}
+		if rv.Set == "" {
+			rv.Set = "held-out"
+		}
+		for _, b := range c.Bins {
+			rv.Rows += b.Rows
+		}
+		if c.Uncalibrated != nil {
+			rv.RawECE, rv.HasRaw = plot.ECE(c.Uncalibrated), true
+		}
+		v.Reliability = rv
 	}
 	for _, c := range r.Confusion {
 		s := c.score()
@@ -196,6 +227,17 @@ func build(r *Run) (*view, error) {
 	return v, nil
 }
 
+// figureOf encodes f as a PNG data URI shown at its nominal size.
+func figureOf(f *plot.Figure) (figureView, error) {
+	png, err := f.Bytes(plot.PNG)
+	if err != nil {
+		return figureView{}, fmt.Errorf("report: figure %s: %w", f.Name, err)
+	}
+	wd, ht := f.PixelSize()
+	return figureView{Name: f.Name, Title: f.Title, Caption: f.Caption, Alt: f.Title,
+		Src: template.URL("data:image/png;base64," + base64.StdEncoding.EncodeToString(png)), Width: wd, Height: ht}, nil
+}
+
 // glanceOf picks the figures a reader wants first: how well the model
 // classifies, and whether the run settled.
 func glanceOf(v *view, h *gauge.History) []glance {
@@ -207,6 +249,9 @@ func glanceOf(v *view, h *gauge.History) []glance {
 	}
 	for _, m := range v.Matrices {
 		add("accuracy-"+m.Name, "accuracy, "+m.Name, fmt.Sprintf("%d rows", m.Rows), m.Accuracy, true)
+	}
+	if c := v.Reliability; c != nil {
+		add("ece", "expected calibration error, "+c.Set, fmt.Sprintf("calibrated probabilities, %d rows", c.Rows), c.ECE, false)
 	}
 	if f := v.Final; f != nil {
 		add("train-error", "training error", "rows with margin ≤ 0", f.TrainError, true)
