@@ -122,7 +122,7 @@ func gen(b *bytes.Buffer, k kernel, strided bool) {
 	}
 	areg := func(r int) string { return k.reg(nacc + k.nv + r%nb) }
 	// After the loop the B and broadcast registers are free.
-	alpha, beta, zero := k.reg(nacc), k.reg(nacc+1), k.reg(nacc+2)
+	alpha, beta := k.reg(nacc), k.reg(nacc+1)
 	frame := 64
 	alphaOff, betaOff, flagsOff := 40, 48, 56
 	if !k.f64 {
@@ -223,15 +223,6 @@ func gen(b *bytes.Buffer, k kernel, strided bool) {
 		}
 	}
 	p("%s_nobeta:", name)
-	p("\tTESTQ $2, R8")
-	p("\tJZ %s_store", name)
-	// max with zero as the first source lets NaN through; adding +0 then
-	// turns −0 into +0: together, Go's max(c, 0).
-	p("\tVXORP%s %s, %s, %s", k.sfx()[1:], zero, zero, zero)
-	for i := range nacc {
-		p("\tVMAX%s %s, %s, %s", k.sfx(), k.reg(i), zero, k.reg(i))
-		p("\tVADD%s %s, %s, %s", k.sfx(), zero, k.reg(i), k.reg(i))
-	}
 	p("%s_store:", name)
 	for r := range k.mr {
 		for v := range k.nv {

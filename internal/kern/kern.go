@@ -54,7 +54,7 @@
 // The assembly kernels compute exactly this rule with vector FMA
 // instructions, and the pure-Go kernel with math.FMA (float64) or an exact
 // emulation (float32); the tests check every kernel against the rule, bit
-// for bit (GemmReLU then applies Go's max(c, 0) to the result). Tiles split only the rows and columns of C, never the inner
+// for bit. Tiles split only the rows and columns of C, never the inner
 // dimension. So the same inputs give the same bits on every run, for any
 // GOMAXPROCS, with or without the noasm tag, and on any processor that
 // rounds by IEEE 754 (which every amd64 and arm64 processor does).
@@ -202,13 +202,6 @@ func Gemm[T Float](tA, tB bool, m, n, k int, alpha T, a []T, lda int, b []T, ldb
 	gemmFlags(tA, tB, m, n, k, alpha, a, lda, b, ldb, beta, c, ldc, 0)
 }
 
-// GemmReLU is Gemm followed by C = max(C, 0) elementwise (Go's max: a NaN
-// stays NaN, −0 becomes +0), in the same pass over C. It is the forward product of a dense layer followed by a
-// rectifier, without a second sweep over the output.
-func GemmReLU[T Float](tA, tB bool, m, n, k int, alpha T, a []T, lda int, b []T, ldb int, beta T, c []T, ldc int) {
-	gemmFlags(tA, tB, m, n, k, alpha, a, lda, b, ldb, beta, c, ldc, flagReLU)
-}
-
 func gemmFlags[T Float](tA, tB bool, m, n, k int, alpha T, a []T, lda int, b []T, ldb int, beta T, c []T, ldc int, flags uintptr) {
 	checkArgs(tA, tB, m, n, k, a, lda, b, ldb, c, ldc)
 	if m == 0 || n == 0 {
@@ -234,9 +227,6 @@ func scale[T Float](m, n int, beta T, c []T, ldc int, flags uintptr) {
 			v := T(0)
 			if beta != 0 {
 				v = beta * row[j]
-			}
-			if flags&flagReLU != 0 {
-				v = max(v, 0)
 			}
 			row[j] = v
 		}
@@ -465,9 +455,6 @@ func (j *job[T]) tile(s *scratch[T], i0, rows, j0, cols int) {
 			beta = 1
 		} else if beta == 0 {
 			flags |= flagNoBeta
-		}
-		if pc+kc >= j.kk {
-			flags |= j.flags & flagReLU
 		}
 		for q := range pb {
 			cj := j0 + q*nr

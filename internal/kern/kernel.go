@@ -10,8 +10,6 @@ import (
 const (
 	// flagNoBeta: beta is zero; C is written, never read (it may hold NaN).
 	flagNoBeta uintptr = 1
-	// flagReLU: c = max(c, 0) with Go's max (NaN stays NaN, −0 becomes +0).
-	flagReLU uintptr = 2
 )
 
 // kernelFunc is a micro-kernel. It computes an mr×nr block of C from a
@@ -22,7 +20,6 @@ const (
 //	t = T(alpha·acc)
 //	c = t                 if flags has flagNoBeta
 //	c = fma(beta, c, t)   otherwise
-//	c = max(c, 0)         if flags has flagReLU (Go's max: NaN stays, −0 → +0)
 //
 // where fma rounds once. Every implementation, in Go or in assembly, must
 // give exactly these bits; TestKernelsBitExact checks it.
@@ -108,9 +105,6 @@ func epilogue[T Float](mr, nr int, acc []T, c *T, ldc int, alpha, beta T, flags 
 			t := T(alpha * acc[i*nr+j])
 			if flags&flagNoBeta == 0 {
 				t = fma(beta, row[j], t)
-			}
-			if flags&flagReLU != 0 {
-				t = max(t, 0)
 			}
 			row[j] = t
 		}

@@ -6,7 +6,6 @@ import (
 	"math"
 	"math/big"
 	"math/rand/v2"
-	"strings"
 	"testing"
 )
 
@@ -103,7 +102,7 @@ func fastFMA[T Float](x, y, z T) T {
 
 // ruleProduct computes pr's product element by element by the rule in the
 // package doc, with fastFMA, starting from the C buffer c0 (in
-// pr.c.s's layout); it returns the new buffer. flags may hold flagReLU.
+// pr.c.s's layout); it returns the new buffer.
 // alpha = 0 is not handled (the rule does not apply).
 func ruleProduct[T Float](pr *problem[T], c0 []T, flags uintptr) []T {
 	c := append([]T(nil), c0...)
@@ -137,9 +136,6 @@ func ruleProduct[T Float](pr *problem[T], c0 []T, flags uintptr) []T {
 					v = fastFMA(pr.beta, v, t)
 				}
 			}
-			if flags&flagReLU != 0 {
-				v = max(v, 0)
-			}
 			c[i*pr.c.ld+j] = v
 		}
 	}
@@ -149,7 +145,7 @@ func ruleProduct[T Float](pr *problem[T], c0 []T, flags uintptr) []T {
 // TestKernelsBitExact checks every kernel against the rounding rule of the
 // package doc, bit for bit, computed element by element with math/big:
 // every transposition, several alpha and beta (beta = 0 with NaN in C),
-// with and without the ReLU, on shapes that leave edge blocks in both
+// on shapes that leave edge blocks in both
 // directions and cross the kcBlock boundary (k = 257, 513), and on shapes
 // of whole blocks, where small products read operands in place.
 func TestKernelsBitExact(t *testing.T) {
@@ -178,7 +174,8 @@ func testBitExact[T Float](t *testing.T) {
 				pads := [3]int{si % 3, (si + 1) % 3, (si + 2) % 3}
 				for _, tAB := range [4][2]bool{{false, false}, {false, true}, {true, false}, {true, true}} {
 					for _, ab := range [][2]float64{{1, 0}, {-0.75, 1.25}, {1, 1}} {
-						for _, flags := range []uintptr{0, flagReLU} {
+						{
+							const flags = 0
 							pr := newProblem[T](rng, tAB[0], tAB[1], m, n, k, la, lb, nil, nil, ab[0], ab[1], pads)
 							want := ruleProduct(pr, pr.c.s, flags)
 							gemmFlags(pr.tA, pr.tB, m, n, k, pr.alpha, pr.a.s, pr.a.ld, pr.b.s, pr.b.ld, pr.beta, pr.c.s, pr.c.ld, flags)
@@ -186,7 +183,7 @@ func testBitExact[T Float](t *testing.T) {
 							for i := range want {
 								if bitsOf(want[i]) != bitsOf(pr.c.s[i]) {
 									if bad++; bad <= 3 {
-										t.Errorf("%s %s relu=%v: element %d (row %d, col %d) = %v, rule gives %v", kernelName(mk), pr.label, flags != 0, i, i/pr.c.ld, i%pr.c.ld, pr.c.s[i], want[i])
+										t.Errorf("%s %s element %d (row %d, col %d) = %v, rule gives %v", kernelName(mk), pr.label, i, i/pr.c.ld, i%pr.c.ld, pr.c.s[i], want[i])
 									}
 								}
 							}
@@ -215,43 +212,6 @@ func TestEveryKernelNaive(t *testing.T) {
 	}
 	for _, mk := range available32()[1:] {
 		t.Run("float=32/"+kernelName(mk), func(t *testing.T) { withKernel(mk, func() { testAgainstNaive[float32](t) }) })
-	}
-}
-
-// TestGemmReLU checks the fused rectifier against Gemm followed by Go's
-// max(c, 0), with guards; alpha = 0 takes the scaling path.
-func TestGemmReLU(t *testing.T) {
-	rng := rand.New(rand.NewPCG(10, 10))
-	for _, sh := range [][3]int{{33, 65, 17}, {128, 100, 300}} {
-		m, n, k := sh[0], sh[1], sh[2]
-		la, lb := draw[float64](rng, m*k), draw[float64](rng, k*n)
-		for _, ab := range [][2]float64{{1, 0}, {0, -1}, {0.5, 1}} {
-			pr := newProblem[float64](rng, false, true, m, n, k, la, lb, nil, nil, ab[0], ab[1], [3]int{1, 2, 3})
-			plain := newProblem[float64](rng, false, true, m, n, k, la, lb, nil, nil, ab[0], ab[1], [3]int{1, 2, 3})
-			copy(plain.c.whole, pr.c.whole)
-			GemmReLU(pr.tA, pr.tB, m, n, k, pr.alpha, pr.a.s, pr.a.ld, pr.b.s, pr.b.ld, pr.beta, pr.c.s, pr.c.ld)
-			plain.run()
-			var errs []string
-			negatives := 0
-			for p, v := range plain.c.whole {
-				w := v
-				if plain.c.element(p) {
-					w = max(v, 0)
-					if v < 0 {
-						negatives++
-					}
-				}
-				if bitsOf(pr.c.whole[p]) != bitsOf(w) && len(errs) < 3 {
-					errs = append(errs, fmt.Sprintf("buffer element %d: %v, want %v", p, pr.c.whole[p], w))
-				}
-			}
-			if len(errs) > 0 {
-				t.Errorf("%s:\n\t%s", pr.label, strings.Join(errs, "\n\t"))
-			}
-			if negatives == 0 {
-				t.Errorf("%s: no negative result; the case tests nothing", pr.label)
-			}
-		}
 	}
 }
 

@@ -352,7 +352,7 @@ type Merged struct {
 	// Ranked the same, best first (Rank).
 	Results, Ranked []Result
 	// Parts are the shard results as given, and Sources their file names
-	// (empty for Combine).
+	// (empty for results merged in memory).
 	Parts   []*Results
 	Sources []string
 }
@@ -380,7 +380,7 @@ func (m *Merged) All() *Results {
 }
 
 // Merge reads results files — typically one per shard of a sweep — and
-// combines them into one ranking (see Combine for the checks).
+// combines them into one ranking (see combine for the checks).
 func Merge(paths ...string) (*Merged, error) {
 	parts := make([]*Results, len(paths))
 	for i, p := range paths {
@@ -393,16 +393,12 @@ func Merge(paths ...string) (*Merged, error) {
 	return combine(parts, paths)
 }
 
-// Combine merges shard results already read. It checks that they share
+// combine merges shard results already read. It checks that they share
 // one fingerprint (ErrMismatch), that no shard is given twice and no
 // point has two results (ErrDuplicate), and that every point of the grid
 // has a result (ErrMissing). Shards of different counts may be mixed (a
 // rerun of part of a sweep with another n): what must hold is that the
 // results cover the grid exactly once.
-func Combine(parts ...*Results) (*Merged, error) {
-	return combine(parts, make([]string, len(parts)))
-}
-
 func combine(parts []*Results, names []string) (*Merged, error) {
 	if len(parts) == 0 {
 		return nil, errors.New("sweep: nothing to merge")

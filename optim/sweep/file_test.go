@@ -63,7 +63,7 @@ func TestMergeEqualsOneProcess(t *testing.T) {
 		if err != nil {
 			t.Fatal(err)
 		}
-		again, err := Combine(back)
+		again, err := combine([]*Results{back}, make([]string, 1))
 		if err != nil {
 			t.Fatal(err)
 		}
