@@ -106,6 +106,7 @@ var helpFlags = map[string][]string{
 	"check":       {"model", "data", "label", "images", "labels"},
 	"classify":    {"model", "data", "o"},
 	"describe":    {"model"},
+	"export":      {"model", "onnx", "features"},
 	"demo":        {"epochs", "o", "quiet", "metrics"},
 	"sweep":       {"data", "label", "rho0", "decay", "lr", "temp", "seed", "shard", "workers", "o", "model", "heatmap"},
 	"sweep-merge": {"in", "o", "model", "heatmap", "top"},

@@ -7,6 +7,7 @@
 //	rhomb check -model pumps.model -data holdout.csv
 //	rhomb classify -model pumps.model -data new.csv -o labelled.csv
 //	rhomb describe -model pumps.model
+//	rhomb export -model pumps.model -onnx pumps.onnx
 //	rhomb version
 //
 // Run `rhomb help COMMAND` for a command's flags and an example.
@@ -68,6 +69,7 @@ func commands() []command {
 		{"check", "measure a saved model on labelled data", runCheck},
 		{"classify", "label new rows with a saved model, CSV in, CSV out", runClassify},
 		{"describe", "show what a model file holds", runDescribe},
+		{"export", "write a saved model as an ONNX file", runExport},
 		{"demo", "train on the embedded demo data (no files needed)", runDemo},
 		{"sweep", "train a grid of ρ0, λ, learning rate, temperature and seed; rank the runs", runSweep},
 		{"sweep-merge", "combine the results of a sweep's shards into one ranking", runSweepMerge},

@@ -236,7 +236,7 @@ func divergence(err error) (bool, string) {
 
 // libPrefixes takes the library's package prefixes out of a message it
 // wrote, which the command line passes on.
-var libPrefixes = strings.NewReplacer("recipe: ", "", "optim: ", "")
+var libPrefixes = strings.NewReplacer("recipe: ", "", "optim: ", "", "onnx: ", "")
 
 // resumeHint is the command that resumes from a checkpoint, with the
 // step-size flag to add, if any.

@@ -4,10 +4,10 @@ import (
 	"encoding/json"
 	"errors"
 	"fmt"
+	"github.com/rhomb/rhomb/internal/atomicfile"
 	"github.com/rhomb/rhomb/net/modelfile/schema"
 	"io"
 	"math"
-	"os"
 	"slices"
 	"strings"
 
@@ -78,7 +78,7 @@ func Save[T net.Float](path string, m *modelfile.Model[T], o Options) error {
 	if err != nil {
 		return err
 	}
-	return os.WriteFile(path, b, 0o644)
+	return atomicfile.WriteFile(path, b)
 }
 
 // Marshal encodes m's network, and its pipeline unless o.FeatureInput, as
@@ -145,7 +145,11 @@ func Marshal[T net.Float](m *modelfile.Model[T], o Options) ([]byte, error) {
 	}
 	g.output(OutputScores, int64(n.Out()), dataTypeFloat, "the network's outputs, one score per class (one ±1 score for two classes)")
 	if !o.ScoresOnly {
-		g.class(n.Out())
+		threshold := float32(0)
+		if d := m.Decision; d != nil && d.Threshold != nil {
+			threshold = float32(*d.Threshold)
+		}
+		g.class(n.Out(), threshold)
 	}
 	return g.model(m.Classes, feature), nil
 }
@@ -439,14 +443,15 @@ func list(names []string) string {
 }
 
 // class adds the class output: ArgMax over the scores (the first largest,
-// as rhomb's data.ClassOf), or, for a single ±1 score, 1 where it is
-// positive and 0 elsewhere.
-func (g *graph) class(outputs int) {
+// as rhomb's data.ClassOf), or, for a single ±1 score, 1 where it is above
+// the model's decision threshold (0 unless the model file holds one;
+// rounded to float32, the graph's type) and 0 elsewhere.
+func (g *graph) class(outputs int, threshold float32) {
 	if outputs > 1 {
 		g.op("ArgMax", "class", []string{OutputScores}, OutputClass, attrInt("axis", 1), attrInt("keepdims", 0), attrInt("select_last_index", 0))
 	} else {
-		zero := g.initF32("class/zero", nil, []float32{0})
-		g.op("Greater", "class", []string{OutputScores, zero}, "class/positive")
+		cut := g.initF32("class/threshold", nil, []float32{threshold})
+		g.op("Greater", "class", []string{OutputScores, cut}, "class/positive")
 		g.op("Cast", "class", []string{"class/positive"}, "class/index", attrInt("to", dataTypeInt64))
 		flat := g.initI64("class/flat", []int64{1}, []int64{-1})
 		g.op("Reshape", "class", []string{"class/index", flat}, OutputClass)

@@ -15,6 +15,7 @@ import (
 	"github.com/rhomb/rhomb/data/prep"
 	"github.com/rhomb/rhomb/net"
 	"github.com/rhomb/rhomb/net/modelfile"
+	"github.com/rhomb/rhomb/net/modelfile/schema"
 )
 
 // A minimal ONNX reader, written for the tests with protowire's Consume
@@ -592,3 +593,30 @@ func TestLevelCapExport(t *testing.T) {
 		}
 	}
 }
+
+// TestThresholdInGraph: a two-class model whose file holds a decision
+// threshold compares the score with that threshold (rounded to float32)
+// in the class output, as rhomb's serving reader answers; without one the
+// cut is 0.
+func TestThresholdInGraph(t *testing.T) {
+	rng := rand.New(rand.NewPCG(5, 6))
+	tb := mixedTable(rng, 40, true)
+	p := fitPipeline(t, tb, prep.Options{Impute: true})
+	n := build[float64](t, p.Width(), 1, func(b *net.Builder[float64]) { b.Dense("h", 4).ReLU("r").Readout("out", 1) })
+	for _, tc := range []struct {
+		decision *schema.Decision
+		want     float32
+	}{{nil, 0}, {&schema.Decision{Threshold: ptr(-0.613758)}, float32(-0.613758)}} {
+		b, err := Marshal(&modelfile.Model[float64]{Network: n, Pipeline: p, Decision: tc.decision}, Options{})
+		if err != nil {
+			t.Fatal(err)
+		}
+		m := decodeModel(t, b)
+		got := m.inits["class/threshold"].floats()
+		if len(got) != 1 || got[0] != tc.want {
+			t.Errorf("decision %+v: the class output cuts at %v, want %v", tc.decision, got, tc.want)
+		}
+	}
+}
+
+func ptr(v float64) *float64 { return &v }
