@@ -11,7 +11,7 @@
 //     and cheaply; NewCSVReader gives the same checks to a program that
 //     reads rows itself.
 //   - ReadIDX reads the IDX files of the MNIST family, gzipped or not.
-//   - Stratified and KFold split rows reproducibly from a seed.
+//   - Stratified and Folds split rows reproducibly from a seed.
 //   - Encode applies a fitted preprocessing pipeline (package data/prep)
 //     and the square-loss label encoding — one ±1 column for two classes,
 //     one-hot rows for more — to give a Set: features and targets as

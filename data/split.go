@@ -116,7 +116,7 @@ type Fold struct {
 	Train, Test []int
 }
 
-// KFold splits the rows 0 … len(labels)−1 into k stratified folds for
+// Folds splits the rows 0 … len(labels)−1 into k stratified folds for
 // cross-validation: every row is in the Test set of exactly one fold, and
 // each class is dealt round the folds in turn, so fold i holds ⌊n_c/k⌋ or
 // ⌈n_c/k⌉ rows of a class of n_c rows, and the folds' sizes differ by at
@@ -126,16 +126,16 @@ type Fold struct {
 // The deal and the order of the rows inside each set are drawn from a PCG
 // seeded with seed: the same labels and seed give the same folds. k must
 // be at least 2 and at most the number of rows.
-func KFold(labels []int, k int, seed uint64) ([]Fold, error) {
+func Folds(labels []int, k int, seed uint64) ([]Fold, error) {
 	if k < 2 {
-		return nil, fmt.Errorf("data: KFold: k = %d, want at least 2 folds", k)
+		return nil, fmt.Errorf("data: Folds: k = %d, want at least 2 folds", k)
 	}
 	if k > len(labels) {
-		return nil, fmt.Errorf("data: KFold: k = %d folds but %d rows; a fold would have no test rows", k, len(labels))
+		return nil, fmt.Errorf("data: Folds: k = %d folds but %d rows; a fold would have no test rows", k, len(labels))
 	}
 	byClass, err := classRows(labels)
 	if err != nil {
-		return nil, fmt.Errorf("data: KFold: %w", err)
+		return nil, fmt.Errorf("data: Folds: %w", err)
 	}
 	rng := rand.New(rand.NewPCG(seed, splitStream))
 	tests := make([][]int, k)

@@ -163,7 +163,7 @@ func TestKFoldIris(t *testing.T) {
 	if err != nil {
 		t.Fatal(err)
 	}
-	folds, err := data.KFold(species, 5, 1)
+	folds, err := data.Folds(species, 5, 1)
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -185,7 +185,7 @@ func TestKFoldProperties(t *testing.T) {
 		all[l]++
 	}
 	for _, k := range []int{2, 3, 10, 103} {
-		folds, err := data.KFold(labels, k, 5)
+		folds, err := data.Folds(labels, k, 5)
 		if err != nil {
 			t.Fatal(err)
 		}
@@ -208,9 +208,9 @@ func TestKFoldProperties(t *testing.T) {
 		}
 	}
 
-	a, _ := data.KFold(labels, 4, 9)
-	b, _ := data.KFold(labels, 4, 9)
-	c, _ := data.KFold(labels, 4, 10)
+	a, _ := data.Folds(labels, 4, 9)
+	b, _ := data.Folds(labels, 4, 9)
+	c, _ := data.Folds(labels, 4, 10)
 	for i := range a {
 		if !slices.Equal(a[i].Test, b[i].Test) || !slices.Equal(a[i].Train, b[i].Train) {
 			t.Errorf("fold %d: same seed, different folds", i)
@@ -222,9 +222,9 @@ func TestKFoldProperties(t *testing.T) {
 	}
 
 	for what, f := range map[string]func() error{
-		"k = 1":          func() error { _, err := data.KFold(labels, 1, 1); return err },
-		"k > rows":       func() error { _, err := data.KFold([]int{0, 1}, 3, 1); return err },
-		"negative label": func() error { _, err := data.KFold([]int{0, -2, 1}, 2, 1); return err },
+		"k = 1":          func() error { _, err := data.Folds(labels, 1, 1); return err },
+		"k > rows":       func() error { _, err := data.Folds([]int{0, 1}, 3, 1); return err },
+		"negative label": func() error { _, err := data.Folds([]int{0, -2, 1}, 2, 1); return err },
 	} {
 		if f() == nil {
 			t.Errorf("%s: no error", what)

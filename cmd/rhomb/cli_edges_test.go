@@ -88,7 +88,7 @@ func TestDescribeJSON(t *testing.T) {
 	dir := t.TempDir()
 	_, model := sensorModel(t, dir, "-save-every", "3")
 	help := mustRun(t, "help", "describe").stdout
-	for _, path := range []string{model, model + ".ckpt"} {
+	for _, path := range []string{model, model + ".checkpoint"} {
 		r := mustRun(t, "describe", "-model", path, "-json")
 		var d map[string]any
 		if err := json.Unmarshal([]byte(r.stdout), &d); err != nil {
@@ -164,7 +164,7 @@ func TestOutputsCheckedFirst(t *testing.T) {
 	}{
 		{[]string{"-o", missing + ".model"}, []string{"-o " + missing + ".model", "does not exist"}},
 		{[]string{"-o", dir}, []string{"-o " + dir + " is a directory"}},
-		{[]string{"-o", filepath.Join(dir, "m.model"), "-checkpoint", missing + ".ckpt"}, []string{"-checkpoint", "does not exist"}},
+		{[]string{"-o", filepath.Join(dir, "m.model"), "-checkpoint", missing + ".checkpoint"}, []string{"-checkpoint", "does not exist"}},
 		{[]string{"-o", filepath.Join(dir, "m.model"), "-report", missing + ".html"}, []string{"-report", "does not exist"}},
 		{[]string{"-o", filepath.Join(dir, "m.model"), "-metrics", missing + ".jsonl"}, []string{"-metrics", "does not exist"}},
 	} {
@@ -387,8 +387,8 @@ func TestMessagesNameFlags(t *testing.T) {
 		"missing dir":            {"train", "-data", sensors, "-label", "state", "-o", path("no/such/x.model")},
 		"no such data":           train(path("absent.csv")),
 		"resume model":           {"train", "-resume", model, "-o", out},
-		"resume conflict":        {"train", "-resume", model + ".ckpt", "-o", out, "-hidden", "4"},
-		"resume lr 0":            {"train", "-resume", model + ".ckpt", "-o", out, "-lr", "0"},
+		"resume conflict":        {"train", "-resume", model + ".checkpoint", "-o", out, "-hidden", "4"},
+		"resume lr 0":            {"train", "-resume", model + ".checkpoint", "-o", out, "-lr", "0"},
 		"describe dir":           {"describe", "-model", dir},
 		"describe absent":        {"describe", "-model", path("absent.model")},
 		"describe garbage":       {"describe", "-model", file("garbage.model", "not a model at all, just text\n")},

@@ -60,7 +60,7 @@ func prepare[T net.Float](c *config, stdin io.Reader) (*prepared[T], error) {
 		sources = append(sources, h.source("-data", c.Data))
 	}
 	r, err := recipe.Prepare[T](t, recipe.Split{Holdout: c.Holdout, Test: c.Test, Seed: c.Seed, KeepIdentifiers: c.KeepIDs, Prep: prep.Options{
-		Impute: c.Missing == "impute", UnitNorm: c.UnitNorm, UnknownAsZeros: c.NewAsNil, Missing: c.Markers, LevelCap: c.LevelCap,
+		Impute: c.Missing == "impute", UnitNorm: c.UnitNorm, ZeroUnseen: c.NewAsNil, Missing: c.Markers, LevelCap: c.LevelCap,
 	}})
 	var ide *recipe.IdentifierError
 	if errors.As(err, &ide) {

@@ -63,7 +63,7 @@ func runDemo(e *env, args []string) error {
 	o.notes = []string{"The demo data are invented: a model trained on them says nothing about real machinery."}
 	keep := o.out != ""
 	if keep {
-		o.checkpoint = o.out + ".ckpt" // written only if interrupted
+		o.checkpoint = o.out + ".checkpoint" // written only if interrupted
 	}
 	if err := c.check(); err != nil {
 		return err

@@ -32,7 +32,7 @@ the same from release to release (fields may be added):
     hold ("multiplier" or "projection"), rho: {parameter: value},
   classes, label, loss,
   preprocessing (absent without): features, impute, unit_norm,
-    unknown_as_zeros, columns: [{name, kind ("numeric" or "categorical"),
+    zero_unseen, columns: [{name, kind ("numeric" or "categorical"),
     mean and scale, or categories and other_levels}],
   training (the settings as train recorded them), figures (the final
   figures as train recorded them),
@@ -108,11 +108,11 @@ type (
 		Rho   map[string]float64 `json:"rho"`
 	}
 	jsonPrep struct {
-		Features       int          `json:"features"`
-		Impute         bool         `json:"impute"`
-		UnitNorm       bool         `json:"unit_norm"`
-		UnknownAsZeros bool         `json:"unknown_as_zeros"`
-		Columns        []jsonColumn `json:"columns"`
+		Features   int          `json:"features"`
+		Impute     bool         `json:"impute"`
+		UnitNorm   bool         `json:"unit_norm"`
+		ZeroUnseen bool         `json:"zero_unseen"`
+		Columns    []jsonColumn `json:"columns"`
 	}
 	jsonColumn struct {
 		Name       string   `json:"name"`
@@ -179,8 +179,8 @@ func describeJSON[T net.Float](w io.Writer, path, dtype string, m *modelfile.Mod
 		d.Normalization = jn
 	}
 	if p := m.Pipeline; p != nil {
-		jp := &jsonPrep{Features: p.Width(), Impute: p.Impute, UnitNorm: p.UnitNorm, UnknownAsZeros: p.UnknownAsZeros, Columns: []jsonColumn{}}
-		for _, s := range p.Steps {
+		jp := &jsonPrep{Features: p.Width(), Impute: p.Impute, UnitNorm: p.UnitNorm, ZeroUnseen: p.ZeroUnseen, Columns: []jsonColumn{}}
+		for _, s := range p.Encodings {
 			c := jsonColumn{Name: s.Name, Kind: "numeric"}
 			if s.Kind == prep.Categorical {
 				c.Kind, c.Categories, c.OtherLevels = "categorical", s.Categories, s.OtherLevels
@@ -285,7 +285,7 @@ func describeNorm[T net.Float](b *strings.Builder, w *normalize.Net[T]) {
 }
 
 func describePipeline(b *strings.Builder, p *prep.Pipeline) {
-	fmt.Fprintf(b, "\npreprocessing: %d input columns → %d features", len(p.Steps), p.Width())
+	fmt.Fprintf(b, "\npreprocessing: %d input columns → %d features", len(p.Encodings), p.Width())
 	var notes []string
 	if p.Impute {
 		notes = append(notes, "missing values imputed")
@@ -293,14 +293,14 @@ func describePipeline(b *strings.Builder, p *prep.Pipeline) {
 	if p.UnitNorm {
 		notes = append(notes, "rows scaled to unit norm")
 	}
-	if p.UnknownAsZeros {
+	if p.ZeroUnseen {
 		notes = append(notes, "unknown categories encoded as zeros")
 	}
 	if len(notes) > 0 {
 		fmt.Fprintf(b, " (%s)", strings.Join(notes, "; "))
 	}
 	b.WriteByte('\n')
-	for _, s := range p.Steps {
+	for _, s := range p.Encodings {
 		if s.Kind == prep.Categorical {
 			other := ""
 			if s.OtherLevels > 0 {

@@ -21,7 +21,7 @@ func TestDivergenceKeepsTheRun(t *testing.T) {
 	dir := t.TempDir()
 	csv := sensorCSV(t, dir, 150)
 	model := filepath.Join(dir, "sensors.model")
-	ckpt := model + ".ckpt"
+	ckpt := model + ".checkpoint"
 	// A step size of a million diverges at once on standardized inputs,
 	// whatever the data (common practice, no source: stable steps are of
 	// the order of 2/λ_max, and λ_max of a small network on standardized
@@ -97,7 +97,7 @@ func TestResumeWithStepFactor(t *testing.T) {
 	dir := t.TempDir()
 	_, model := sensorModel(t, dir, "-save-every", "1")
 	out := filepath.Join(dir, "again.model")
-	mustRun(t, "train", "-resume", model+".ckpt", "-o", out, "-epochs", "4", "-step-factor", "0.05", "-quiet")
+	mustRun(t, "train", "-resume", model+".checkpoint", "-o", out, "-epochs", "4", "-step-factor", "0.05", "-quiet")
 	m, err := modelfile.Load[float32](out)
 	if err != nil {
 		t.Fatal(err)
@@ -131,7 +131,7 @@ func TestResumeStillExact(t *testing.T) {
 	settings := []string{"train", "-data", csv, "-label", "state", "-momentum", "0.9", "-temp", "1e-6", "-hidden", "8,8", "-holdout", "0", "-quiet"}
 	mustRun(t, append(settings, "-epochs", "4", "-o", path("whole.model"))...)
 	mustRun(t, append(settings, "-epochs", "2", "-save-every", "2", "-o", path("half.model"))...)
-	mustRun(t, "train", "-resume", path("half.model.ckpt"), "-epochs", "4", "-quiet", "-o", path("resumed.model"))
+	mustRun(t, "train", "-resume", path("half.model.checkpoint"), "-epochs", "4", "-quiet", "-o", path("resumed.model"))
 	load := func(name string) *modelfile.Model[float32] {
 		t.Helper()
 		m, err := modelfile.Load[float32](path(name))
@@ -167,13 +167,13 @@ func TestDivergenceAfterBestEpoch(t *testing.T) {
 	dir := t.TempDir()
 	_, model := sensorModel(t, dir, "-save-every", "3")
 	out := filepath.Join(dir, "pushed.model")
-	r := mustRun(t, "train", "-resume", model+".ckpt", "-o", out, "-epochs", "5", "-lr", "1e6", "-quiet")
-	for _, p := range []string{"diverged", "saved " + out, "from the end of epoch 3", "saved in the checkpoint " + out + ".ckpt", "rhomb train -resume " + out + ".ckpt -o " + out + " -lr "} {
+	r := mustRun(t, "train", "-resume", model+".checkpoint", "-o", out, "-epochs", "5", "-lr", "1e6", "-quiet")
+	for _, p := range []string{"diverged", "saved " + out, "from the end of epoch 3", "saved in the checkpoint " + out + ".checkpoint", "rhomb train -resume " + out + ".checkpoint -o " + out + " -lr "} {
 		if !strings.Contains(r.stdout, p) {
 			t.Errorf("output lacks %q:\n%s", p, r.stdout)
 		}
 	}
-	ckpt, err := modelfile.Load[float32](out + ".ckpt")
+	ckpt, err := modelfile.Load[float32](out + ".checkpoint")
 	if err != nil {
 		t.Fatal(err)
 	}

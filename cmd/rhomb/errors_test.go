@@ -285,7 +285,7 @@ func TestBadModelFile(t *testing.T) {
 func TestResumeErrors(t *testing.T) {
 	dir := t.TempDir()
 	csv, model := sensorModel(t, dir, "-save-every", "1")
-	ckpt := model + ".ckpt"
+	ckpt := model + ".checkpoint"
 	if _, err := os.Stat(ckpt); err != nil {
 		t.Fatalf("-save-every 1 wrote no checkpoint: %v", err)
 	}
@@ -294,7 +294,7 @@ func TestResumeErrors(t *testing.T) {
 		want(t, run(t, nil, "train", "-resume", model, "-o", out), exitBadModel, model, "not a checkpoint")
 	})
 	t.Run("no such checkpoint", func(t *testing.T) {
-		absent := filepath.Join(dir, "absent.ckpt")
+		absent := filepath.Join(dir, "absent.checkpoint")
 		want(t, run(t, nil, "train", "-resume", absent, "-o", out), exitBadModel, absent)
 	})
 	for _, conflict := range [][]string{{"-momentum", "0.5"}, {"-data", csv}, {"-seed", "2"}, {"-hidden", "4"}, {"-temp", "0"}} {

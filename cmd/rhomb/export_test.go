@@ -35,7 +35,7 @@ func TestExportONNX(t *testing.T) {
 		t.Fatalf("the exported file (%d bytes) differs from onnx.Marshal of the model (%d bytes)", len(got), len(lib))
 	}
 	mustRun(t, "train", "-data", filepath.Join(dir, "sensors.csv"), "-label", "state", "-hidden", "4", "-epochs", "2", "-quiet", "-save-every", "1", "-o", filepath.Join(dir, "c.model"))
-	r := run(t, nil, "export", "-model", filepath.Join(dir, "c.model.ckpt"), "-onnx", out)
+	r := run(t, nil, "export", "-model", filepath.Join(dir, "c.model.checkpoint"), "-onnx", out)
 	want(t, r, exitBadModel, "is a checkpoint")
 	want(t, run(t, nil, "export", "-model", model), exitUsage, "-onnx")
 }

@@ -30,7 +30,7 @@ func TestImagesThroughThePipeline(t *testing.T) {
 	if err != nil {
 		t.Fatal(err)
 	}
-	if m.Pipeline == nil || len(m.Pipeline.Steps) != 784 || m.Pipeline.Steps[0].Name != "p0" {
+	if m.Pipeline == nil || len(m.Pipeline.Encodings) != 784 || m.Pipeline.Encodings[0].Name != "p0" {
 		t.Fatalf("the model's pipeline %v; want 784 pixel columns p0 … p783", m.Pipeline)
 	}
 	r := mustRun(t, "check", "-model", model, "-images", images, "-labels", labels)

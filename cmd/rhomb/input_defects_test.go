@@ -79,7 +79,7 @@ func TestTrainRefusesLatin1(t *testing.T) {
 	if err != nil {
 		t.Fatal(err)
 	}
-	for _, s := range m.Pipeline.Steps {
+	for _, s := range m.Pipeline.Encodings {
 		if s.Name == "city" && !slices.Equal(s.Categories, []string{"Berlin", "Märzhausen", "Münster"}) {
 			t.Errorf("the model's cities are %q", s.Categories)
 		}
@@ -184,7 +184,7 @@ func TestEveryFileReadsBack(t *testing.T) {
 	models, checkpoints := 0, 0
 	for _, e := range entries {
 		name := e.Name()
-		if !strings.HasSuffix(name, ".model") && !strings.HasSuffix(name, ".ckpt") {
+		if !strings.HasSuffix(name, ".model") && !strings.HasSuffix(name, ".checkpoint") {
 			if !strings.HasSuffix(name, ".csv") {
 				t.Errorf("train left %s behind", name)
 			}
@@ -212,7 +212,7 @@ func TestEveryFileReadsBack(t *testing.T) {
 			}
 			ckpt = m.Checkpoint != nil
 		}
-		if ckpt != strings.HasSuffix(name, ".ckpt") {
+		if ckpt != strings.HasSuffix(name, ".checkpoint") {
 			t.Errorf("%s: checkpoint %v", name, ckpt)
 		}
 		if _, err := serving.Load(path); err != nil {

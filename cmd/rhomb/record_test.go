@@ -26,7 +26,7 @@ func TestRunRecordAndResume(t *testing.T) {
 	metrics := filepath.Join(dir, "m.jsonl")
 	common := []string{"train", "-data", csvPath, "-label", "state", "-hidden", "6", "-quiet", "-o", model, "-metrics", metrics, "-save-every", "1", "-patience", "-1"}
 	mustRun(t, append(common, "-epochs", "2")...)
-	mustRun(t, "train", "-resume", model+".ckpt", "-epochs", "4", "-o", model, "-metrics", metrics, "-quiet")
+	mustRun(t, "train", "-resume", model+".checkpoint", "-epochs", "4", "-o", model, "-metrics", metrics, "-quiet")
 
 	raw, err := os.ReadFile(csvPath)
 	if err != nil {
@@ -76,7 +76,7 @@ func TestRunRecordAndResume(t *testing.T) {
 	if err := os.WriteFile(csvPath, []byte(swapped), 0o644); err != nil {
 		t.Fatal(err)
 	}
-	r := run(t, nil, "train", "-resume", model+".ckpt", "-epochs", "5", "-o", model, "-quiet")
+	r := run(t, nil, "train", "-resume", model+".checkpoint", "-epochs", "5", "-o", model, "-quiet")
 	want(t, r, exitBadData, "-data", "is not the data the run", "SHA-256")
 }
 

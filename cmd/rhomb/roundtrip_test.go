@@ -378,12 +378,12 @@ func TestResumeThroughTheCLI(t *testing.T) {
 			t.Errorf("%s: checkpoint at epoch %d step %d (+%d), want epoch %d step %d", name, m.Checkpoint.Epoch, m.Checkpoint.Step, m.Checkpoint.InEpoch, epochs, epochs*perEpoch)
 		}
 	}
-	ckpt("a.model.ckpt", 4)
-	ckpt("x.model.ckpt", 2)
+	ckpt("a.model.checkpoint", 4)
+	ckpt("x.model.checkpoint", 2)
 
 	// c: resume x's checkpoint for the remaining 2 epochs. -epochs is the
 	// one setting that may be given again.
-	r := mustRun(t, "train", "-resume", path("x.model.ckpt"), "-epochs", "4", "-quiet", "-o", path("c.model"))
+	r := mustRun(t, "train", "-resume", path("x.model.checkpoint"), "-epochs", "4", "-quiet", "-o", path("c.model"))
 	if !strings.Contains(r.stdout, "trained 4 epochs") {
 		t.Errorf("resumed run does not report 4 epochs:\n%s", r.stdout)
 	}

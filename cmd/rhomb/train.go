@@ -51,8 +51,8 @@ that can hurt someone.`
 
 const trainExample = `  rhomb train -data readings.csv -label condition -missing impute \
       -hidden 32,32 -epochs 60 -decay 1e-3 -o pumps.model -save-every 10
-  rhomb train -resume pumps.model.ckpt -o pumps.model     # after an interrupt
-  rhomb train -resume pumps.model.ckpt -o pumps.model -lr 0.002   # after divergence, a smaller step
+  rhomb train -resume pumps.model.checkpoint -o pumps.model     # after an interrupt
+  rhomb train -resume pumps.model.checkpoint -o pumps.model -lr 0.002   # after divergence, a smaller step
   gunzip -c readings.csv.gz | rhomb train -data - -label condition -o pumps.model`
 
 // runOptions are the train flags that are not part of the run's settings:
@@ -83,7 +83,7 @@ func runTrain(e *env, args []string) error {
 	var o runOptions
 	fs.StringVar(&o.out, "o", "", "model `file` to write (required)")
 	fs.IntVar(&o.every, "save-every", 0, "write a checkpoint every `N` epochs (one is always written on interrupt)")
-	fs.StringVar(&o.checkpoint, "checkpoint", "", "checkpoint `file` (default: the model file with .ckpt appended)")
+	fs.StringVar(&o.checkpoint, "checkpoint", "", "checkpoint `file` (default: the model file with .checkpoint appended)")
 	fs.StringVar(&o.resume, "resume", "", "continue the run saved in this checkpoint `file`, with its settings (-epochs, and -lr or -step-factor for a smaller step, may be given again)")
 	fs.StringVar(&o.metrics, "metrics", "", "write every epoch's figures (loss, training and validation accuracy, ρ, ρ*, minimum margin) as JSON Lines to this `file`; a resumed run appends")
 	fs.StringVar(&o.report, "report", "", "write a self-contained HTML run report (figures, margins, ρ and ρ*, collapse, bound, cautions) to this `file`")
@@ -96,7 +96,7 @@ func runTrain(e *env, args []string) error {
 		return usageError{errors.New("train: -o names the model file to write")}
 	}
 	if o.checkpoint == "" {
-		o.checkpoint = o.out + ".ckpt"
+		o.checkpoint = o.out + ".checkpoint"
 	}
 	if o.every < 0 {
 		return usageError{fmt.Errorf("train: -save-every %d: want 0 (never) or a number of epochs", o.every)}

@@ -61,7 +61,7 @@ func ExampleOptions_levelCap() {
 		fmt.Println(err)
 		return
 	}
-	fmt.Printf("%q, %d levels pooled\n", p.FeatureNames(), p.Steps[0].OtherLevels)
+	fmt.Printf("%q, %d levels pooled\n", p.FeatureNames(), p.Encodings[0].OtherLevels)
 	x := make([]float64, p.Width())
 	for _, part := range []string{"valve", "seal", "impeller"} {
 		_ = p.ApplyStrings([]string{part}, x)

@@ -40,16 +40,16 @@ var cityCounts = []string{
 func TestLevelCapByHand(t *testing.T) {
 	cols := []prep.Column{cat("city", append(slices.Clone(cityCounts), "")...)}
 	p := mustFit(t, cols, nil, prep.Options{LevelCap: 3, Impute: true})
-	want := prep.Step{Name: "city", Kind: prep.Categorical, Scale: 1,
+	want := prep.Encoding{Name: "city", Kind: prep.Categorical, Scale: 1,
 		Categories: []string{"alta", "bergen", "oslo"}, OtherLevels: 3, FillCategory: "oslo"}
-	if !reflect.DeepEqual(p.Steps, []prep.Step{want}) {
-		t.Fatalf("step %+v\nwant %+v", p.Steps[0], want)
+	if !reflect.DeepEqual(p.Encodings, []prep.Encoding{want}) {
+		t.Fatalf("step %+v\nwant %+v", p.Encodings[0], want)
 	}
 	if got, w := p.FeatureNames(), []string{"city=alta", "city=bergen", "city=oslo", "city= (other)"}; !slices.Equal(got, w) {
 		t.Errorf("FeatureNames %q, want %q", got, w)
 	}
-	if p.Width() != 4 || p.Steps[0].Width() != 4 {
-		t.Errorf("Width %d, step width %d; want 3 kept + 1 other", p.Width(), p.Steps[0].Width())
+	if p.Width() != 4 || p.Encodings[0].Width() != 4 {
+		t.Errorf("Width %d, step width %d; want 3 kept + 1 other", p.Width(), p.Encodings[0].Width())
 	}
 	for _, c := range []struct {
 		cell string
@@ -95,7 +95,7 @@ func TestLevelCapTies(t *testing.T) {
 	cols := []prep.Column{cat("c", "b", "a", "C", "é", "z")}
 	for range 20 {
 		p := mustFit(t, cols, nil, prep.Options{LevelCap: 2})
-		if s := p.Steps[0]; !slices.Equal(s.Categories, []string{"C", "a"}) || s.OtherLevels != 3 {
+		if s := p.Encodings[0]; !slices.Equal(s.Categories, []string{"C", "a"}) || s.OtherLevels != 3 {
 			t.Fatalf("kept %q, %d other; want [C a] and 3", s.Categories, s.OtherLevels)
 		}
 	}
@@ -103,7 +103,7 @@ func TestLevelCapTies(t *testing.T) {
 	// keeps "a" alone, which is also the fill (as without the cap,
 	// TestImputeTrainingRowsOnly).
 	p := mustFit(t, []prep.Column{cat("c", "c", "a", "b", "c", "a", "")}, nil, prep.Options{LevelCap: 1, Impute: true})
-	if s := p.Steps[0]; !slices.Equal(s.Categories, []string{"a"}) || s.FillCategory != "a" || s.OtherLevels != 2 {
+	if s := p.Encodings[0]; !slices.Equal(s.Categories, []string{"a"}) || s.FillCategory != "a" || s.OtherLevels != 2 {
 		t.Errorf("step %+v: want kept [a], fill a, 2 other levels", s)
 	}
 	// A larger cap than the heap's first fill: counts 1..9 for levels
@@ -116,7 +116,7 @@ func TestLevelCapTies(t *testing.T) {
 	}
 	for range 20 {
 		p = mustFit(t, []prep.Column{cat("c", v...)}, nil, prep.Options{LevelCap: 4})
-		if s := p.Steps[0]; !slices.Equal(s.Categories, []string{"l6", "l7", "l8", "l9"}) || s.OtherLevels != 5 {
+		if s := p.Encodings[0]; !slices.Equal(s.Categories, []string{"l6", "l7", "l8", "l9"}) || s.OtherLevels != 5 {
 			t.Fatalf("kept %q, %d other; want [l6 l7 l8 l9] and 5", s.Categories, s.OtherLevels)
 		}
 	}
@@ -130,10 +130,10 @@ func TestLevelCapOnlyWide(t *testing.T) {
 	cols := []prep.Column{num("x", 1, 2, 3, 4), cat("shift", "day", "night", "day", "night"), cat("batch", "b1", "b2", "b3", "b1")}
 	plain := mustFit(t, cols, nil, prep.Options{})
 	capped := mustFit(t, cols, nil, prep.Options{LevelCap: 2})
-	if !reflect.DeepEqual(plain.Steps[:2], capped.Steps[:2]) {
-		t.Errorf("columns within the cap changed:\n%+v\n%+v", plain.Steps[:2], capped.Steps[:2])
+	if !reflect.DeepEqual(plain.Encodings[:2], capped.Encodings[:2]) {
+		t.Errorf("columns within the cap changed:\n%+v\n%+v", plain.Encodings[:2], capped.Encodings[:2])
 	}
-	if s := capped.Steps[2]; !slices.Equal(s.Categories, []string{"b1", "b2"}) || s.OtherLevels != 1 {
+	if s := capped.Encodings[2]; !slices.Equal(s.Categories, []string{"b1", "b2"}) || s.OtherLevels != 1 {
 		t.Errorf("batch: %+v, want kept [b1 b2] (b1 ×2, then b2 before b3), 1 other", s)
 	}
 	if capped.Width() != 1+2+3 {
@@ -150,7 +150,7 @@ func TestLevelCapOnlyWide(t *testing.T) {
 	}
 	dst := make([]float64, capped.Width())
 	for _, o := range []bool{false, true} {
-		capped.UnknownAsZeros = o
+		capped.ZeroUnseen = o
 		if err := capped.ApplyStrings([]string{"1", "dusk", "b9"}, dst); o == (err != nil) || (err != nil && !errors.Is(err, prep.ErrUnknownCategory)) {
 			t.Errorf("unknown-as-zeros %v: unseen shift: %v", o, err)
 		}
@@ -194,11 +194,11 @@ func TestLevelCapServeEqualsTrain(t *testing.T) {
 	for _, o := range []prep.Options{
 		{LevelCap: 5, Impute: true},
 		{LevelCap: 5, Impute: true, UnitNorm: true},
-		{LevelCap: 1, Impute: true, UnknownAsZeros: true},
+		{LevelCap: 1, Impute: true, ZeroUnseen: true},
 	} {
 		p := mustFit(t, cols, even, o)
-		if p.Steps[0].OtherLevels == 0 {
-			t.Fatalf("test premise: the wide column should exceed the cap: %+v", p.Steps[0])
+		if p.Encodings[0].OtherLevels == 0 {
+			t.Fatalf("test premise: the wide column should exceed the cap: %+v", p.Encodings[0])
 		}
 		checkServeEqualsTrain(t, p, cols)
 		// And the kinds of value are all there: kept, pooled, unseen.
@@ -208,7 +208,7 @@ func TestLevelCapServeEqualsTrain(t *testing.T) {
 			train[wide[r]] = true
 		}
 		for _, v := range wide {
-			_, in := slices.BinarySearch(p.Steps[0].Categories, v)
+			_, in := slices.BinarySearch(p.Encodings[0].Categories, v)
 			switch {
 			case v == "":
 			case in:
@@ -271,8 +271,18 @@ func TestLevelCapJSON(t *testing.T) {
 	if err := o.ApplyStrings([]string{"5", "west"}, dst); !errors.Is(err, prep.ErrUnknownCategory) {
 		t.Errorf("old pipeline, unseen category: %v, want the unknown-category error", err)
 	}
-	if again, _ := json.Marshal(o); string(again) != old {
-		t.Errorf("old pipeline written back as\n%s\nwant\n%s", again, old)
+	// Written back, it takes the current names ("encodings",
+	// "zero_unseen") and nothing else changes.
+	renamed := strings.NewReplacer(`"steps"`, `"encodings"`, `"unknown_as_zeros"`, `"zero_unseen"`).Replace(old)
+	if again, _ := json.Marshal(o); string(again) != renamed {
+		t.Errorf("old pipeline written back as\n%s\nwant\n%s", again, renamed)
+	}
+	if _, err := json.Marshal(strictDecode(t, []byte(renamed))); err != nil {
+		t.Error(err)
+	}
+	var both prep.Pipeline
+	if err := json.Unmarshal([]byte(strings.Replace(renamed, `"impute"`, `"steps":[],"impute"`, 1)), &both); err == nil {
+		t.Error(`a pipeline with both "encodings" and "steps" was accepted`)
 	}
 }
 
@@ -297,15 +307,15 @@ func TestLevelCapValidate(t *testing.T) {
 		t.Fatal(err)
 	}
 	for what, damage := range map[string]func(p *prep.Pipeline){
-		"negative count":   func(p *prep.Pipeline) { p.Steps[1].OtherLevels = -1 },
-		"count on numeric": func(p *prep.Pipeline) { p.Steps[0].OtherLevels = 1 },
+		"negative count":   func(p *prep.Pipeline) { p.Encodings[1].OtherLevels = -1 },
+		"count on numeric": func(p *prep.Pipeline) { p.Encodings[0].OtherLevels = 1 },
 		// The fill moves along, so that only the spaces are wrong.
 		"spaced category": func(p *prep.Pipeline) {
-			p.Steps[1].Categories, p.Steps[1].FillCategory = []string{" (other)"}, " (other)"
+			p.Encodings[1].Categories, p.Encodings[1].FillCategory = []string{" (other)"}, " (other)"
 		},
-		"trailing space":        func(p *prep.Pipeline) { p.Steps[1].Categories, p.Steps[1].FillCategory = []string{"a "}, "a " },
-		"fill not kept":         func(p *prep.Pipeline) { p.Steps[1].FillCategory = "b" },
-		"no categories, capped": func(p *prep.Pipeline) { p.Steps[1].Categories = nil },
+		"trailing space":        func(p *prep.Pipeline) { p.Encodings[1].Categories, p.Encodings[1].FillCategory = []string{"a "}, "a " },
+		"fill not kept":         func(p *prep.Pipeline) { p.Encodings[1].FillCategory = "b" },
+		"no categories, capped": func(p *prep.Pipeline) { p.Encodings[1].Categories = nil },
 	} {
 		p := good()
 		damage(p)
@@ -319,15 +329,15 @@ func TestLevelCapValidate(t *testing.T) {
 	// never writes, is not refused (it is merely never matched), nor a fill
 	// outside the categories.
 	p := mustFit(t, []prep.Column{cat("c", "a", "b")}, nil, prep.Options{Impute: true})
-	p.Steps[0].Categories = []string{" a", "b"}
-	p.Steps[0].FillCategory = "z"
+	p.Encodings[0].Categories = []string{" a", "b"}
+	p.Encodings[0].FillCategory = "z"
 	if err := p.Validate(); err != nil {
 		t.Errorf("an uncapped step is checked more strictly than before: %v", err)
 	}
 	// Not imputing, the fill of a capped step is not looked at.
 	p = mustFit(t, []prep.Column{cat("c", "a", "b", "a")}, nil, prep.Options{LevelCap: 1})
-	if err := p.Validate(); err != nil || p.Steps[0].FillCategory != "" {
-		t.Errorf("capped without imputation: %v, fill %q", err, p.Steps[0].FillCategory)
+	if err := p.Validate(); err != nil || p.Encodings[0].FillCategory != "" {
+		t.Errorf("capped without imputation: %v, fill %q", err, p.Encodings[0].FillCategory)
 	}
 }
 
@@ -367,7 +377,7 @@ func TestLevelCapAllocs(t *testing.T) {
 // slots: internal/runtime/maps, from memory), and the reference is taken
 // as the largest of three builds. On top: the kept list, 50 × (24 bytes
 // in the heap + 16 for the kept string header), and 2 KiB for the
-// Pipeline, its one Step and the copy of the missing markers. Anything
+// Pipeline, its one Encoding and the copy of the missing markers. Anything
 // that held a slice per distinct value (320,000 bytes for 20,000 string
 // headers) or per row, let alone rows × levels (3.2 GB of float64), is
 // far beyond it. The training rows are passed in, allocated beforehand,
@@ -404,7 +414,7 @@ func TestLevelCapMemory(t *testing.T) {
 		t.Errorf("Fit allocated %d bytes, more than the bound %d (map %d + one table + kept list + 2 KiB)", got, bound, ref)
 	}
 	// Every count is 1: a 20,000-way tie, kept byte-wise: v00000..v00049.
-	s := p.Steps[0]
+	s := p.Encodings[0]
 	if p.Width() != kept+1 || s.OtherLevels != n-kept || len(s.Categories) != kept ||
 		s.Categories[0] != "v00000" || s.Categories[kept-1] != "v00049" {
 		t.Errorf("width %d, %d other levels, kept %q…; want 51, 19950, v00000…v00049", p.Width(), s.OtherLevels, s.Categories[:3])

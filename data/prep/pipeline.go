@@ -1,6 +1,8 @@
 package prep
 
 import (
+	"bytes"
+	"encoding/json"
 	"errors"
 	"fmt"
 	"math"
@@ -34,10 +36,10 @@ type Options struct {
 	// in its input). A row of zeros stays zero. False: rows are left as
 	// encoded.
 	UnitNorm bool
-	// UnknownAsZeros encodes a category not seen in training as a one-hot
+	// ZeroUnseen encodes a category not seen in training as a one-hot
 	// block of zeros, so serving keeps answering when a new category
 	// appears. False: such a value is an error wrapping ErrUnknownCategory.
-	UnknownAsZeros bool
+	ZeroUnseen bool
 	// Missing are the cell values that the serving path (ApplyStrings,
 	// ApplyMap) reads as missing; they should be the markers the training
 	// data was read with. Nil means DefaultMissing; an empty, non-nil
@@ -50,14 +52,14 @@ type Options struct {
 	// more feature, "other", which is 1 for every other value: a training
 	// category beyond the kept ones, and also a category never seen in
 	// training, which is then not an error and not a block of zeros,
-	// whatever UnknownAsZeros says. A column with at most LevelCap
+	// whatever ZeroUnseen says. A column with at most LevelCap
 	// categories is encoded exactly as without the cap. The most frequent
 	// category, the fill value when imputing, is always kept. 0 keeps
 	// every category; a negative value is an error.
 	LevelCap int
 }
 
-// Pipeline is a fitted preprocessing: one Step per input column, in the
+// Pipeline is a fitted preprocessing: one Encoding per input column, in the
 // order of the columns it was fitted on, turning the raw cells of a row
 // into Width features.
 //
@@ -71,15 +73,44 @@ type Options struct {
 // gives the same bits in both. A Pipeline is safe for concurrent use once
 // built, and its Apply methods allocate nothing unless they fail.
 type Pipeline struct {
-	Steps []Step `json:"steps"`
+	Encodings []Encoding `json:"encodings"`
 	// The settings of Options, as fitted.
-	Impute         bool     `json:"impute"`
-	UnitNorm       bool     `json:"unit_norm"`
-	UnknownAsZeros bool     `json:"unknown_as_zeros"`
-	Missing        []string `json:"missing"`
+	Impute     bool     `json:"impute"`
+	UnitNorm   bool     `json:"unit_norm"`
+	ZeroUnseen bool     `json:"zero_unseen"`
+	Missing    []string `json:"missing"`
 }
 
-// Step is the fitted encoding of one input column.
+// UnmarshalJSON decodes a pipeline strictly (a field this type does not
+// have is an error), and also reads the field names of files written
+// before they were renamed: "steps" for "encodings" and
+// "unknown_as_zeros" for "zero_unseen".
+func (p *Pipeline) UnmarshalJSON(b []byte) error {
+	type fields Pipeline // the same fields, without this method
+	var aux struct {
+		fields
+		Steps          []Encoding `json:"steps"`
+		UnknownAsZeros *bool      `json:"unknown_as_zeros"`
+	}
+	d := json.NewDecoder(bytes.NewReader(b))
+	d.DisallowUnknownFields()
+	if err := d.Decode(&aux); err != nil {
+		return err
+	}
+	if aux.Steps != nil {
+		if aux.Encodings != nil {
+			return errors.New(`prep: the pipeline has both "encodings" and the older "steps"`)
+		}
+		aux.Encodings = aux.Steps
+	}
+	if aux.UnknownAsZeros != nil {
+		aux.ZeroUnseen = aux.ZeroUnseen || *aux.UnknownAsZeros
+	}
+	*p = Pipeline(aux.fields)
+	return nil
+}
+
+// Encoding is the fitted encoding of one input column.
 //
 // A numeric value x becomes one feature (x − Mean)/Scale. When the
 // pipeline standardizes, Mean is the mean of the column over the training
@@ -98,7 +129,7 @@ type Pipeline struct {
 // sorted (byte-wise) order. Surrounding spaces of a cell are ignored, as by
 // IsMissing and ParseNumber. The block has len(Categories) features, and
 // one more when OtherLevels is positive (see Options.LevelCap).
-type Step struct {
+type Encoding struct {
 	Name  string  `json:"name"`
 	Kind  Kind    `json:"kind"`
 	Mean  float64 `json:"mean"`
@@ -131,7 +162,7 @@ const OtherName = " (other)"
 
 // Width returns the number of features the step writes: 1 for a numeric
 // column, the size of the one-hot block for a categorical one.
-func (s *Step) Width() int {
+func (s *Encoding) Width() int {
 	if s.Kind == Categorical {
 		if s.OtherLevels > 0 {
 			return len(s.Categories) + 1
@@ -262,10 +293,10 @@ func Fit(cols []Column, rows []int, o Options) (*Pipeline, error) {
 	}
 
 	p := &Pipeline{
-		Steps:          make([]Step, len(cols)),
-		Impute:         o.Impute,
-		UnitNorm:       o.UnitNorm,
-		UnknownAsZeros: o.UnknownAsZeros,
+		Encodings:  make([]Encoding, len(cols)),
+		Impute:     o.Impute,
+		UnitNorm:   o.UnitNorm,
+		ZeroUnseen: o.ZeroUnseen,
 	}
 	markers := o.Missing
 	if markers == nil {
@@ -277,9 +308,9 @@ func Fit(cols []Column, rows []int, o Options) (*Pipeline, error) {
 	for i := range cols {
 		var err error
 		if cols[i].Kind == Numeric {
-			p.Steps[i], err = fitNumeric(&cols[i], rows, o)
+			p.Encodings[i], err = fitNumeric(&cols[i], rows, o)
 		} else {
-			p.Steps[i], err = fitCategorical(&cols[i], rows, o, p.Missing)
+			p.Encodings[i], err = fitCategorical(&cols[i], rows, o, p.Missing)
 		}
 		if err != nil {
 			return nil, err
@@ -297,8 +328,8 @@ func colLen(c *Column) int {
 
 func flagged(c *Column, r int) bool { return c.Missing != nil && c.Missing[r] }
 
-func fitNumeric(c *Column, rows []int, o Options) (Step, error) {
-	s := Step{Name: c.Name, Kind: Numeric, Scale: 1}
+func fitNumeric(c *Column, rows []int, o Options) (Encoding, error) {
+	s := Encoding{Name: c.Name, Kind: Numeric, Scale: 1}
 	// Mean shifted by the first value: exact for a constant column (so it
 	// gets variance 0, not rounding noise), and accurate when the values
 	// are large compared with their spread.
@@ -368,7 +399,7 @@ func fitNumeric(c *Column, rows []int, o Options) (Step, error) {
 }
 
 // SpreadFloor is the least Scale of a standardized numeric column, as a
-// fraction of its training range (see Step). For normally distributed
+// fraction of its training range (see Encoding). For normally distributed
 // values the range of n rows is about 6.5 standard deviations at n = 10³
 // and 9 at n = 10⁵ (the expected range of a normal sample; common
 // practice, no source), so the floor, a twentieth of the range, leaves
@@ -376,8 +407,8 @@ func fitNumeric(c *Column, rows []int, o Options) (Step, error) {
 // a few values.
 const SpreadFloor = 1.0 / 20
 
-func fitCategorical(c *Column, rows []int, o Options, markers []string) (Step, error) {
-	s := Step{Name: c.Name, Kind: Categorical, Scale: 1}
+func fitCategorical(c *Column, rows []int, o Options, markers []string) (Encoding, error) {
+	s := Encoding{Name: c.Name, Kind: Categorical, Scale: 1}
 	count := map[string]int{}
 	for _, r := range rows {
 		v := c.Cat[r]
@@ -472,22 +503,22 @@ func mostFrequent(count map[string]int, k int) []string {
 	return out
 }
 
-// Validate checks a pipeline decoded from a file: every step numeric or
+// Validate checks a pipeline decoded from a file: every encoding numeric or
 // categorical with a unique non-empty name, finite Mean and Fill, a finite
-// positive Scale, and non-empty, sorted, distinct Categories. A step with
+// positive Scale, and non-empty, sorted, distinct Categories. An encoding with
 // OtherLevels set must moreover be categorical, with a positive count,
 // categories free of surrounding spaces, and, when the pipeline imputes,
 // its FillCategory among its Categories. The Apply methods assume a valid
 // pipeline.
 func (p *Pipeline) Validate() error {
-	if len(p.Steps) == 0 {
-		return errors.New("prep: pipeline has no steps")
+	if len(p.Encodings) == 0 {
+		return errors.New("prep: pipeline has no encodings")
 	}
 	seen := map[string]bool{}
-	for i := range p.Steps {
-		s := &p.Steps[i]
+	for i := range p.Encodings {
+		s := &p.Encodings[i]
 		bad := func(what string) error {
-			return fmt.Errorf("prep: pipeline step %d (%q): %s; the model file is damaged or was not written by this package", i, s.Name, what)
+			return fmt.Errorf("prep: pipeline encoding %d (%q): %s; the model file is damaged or was not written by this package", i, s.Name, what)
 		}
 		switch {
 		case s.Name == "":
@@ -540,8 +571,8 @@ func finite(x float64) bool { return !math.IsNaN(x) && !math.IsInf(x, 0) }
 // Width returns the number of features a row encodes to.
 func (p *Pipeline) Width() int {
 	w := 0
-	for i := range p.Steps {
-		w += p.Steps[i].Width()
+	for i := range p.Encodings {
+		w += p.Encodings[i].Width()
 	}
 	return w
 }
@@ -552,8 +583,8 @@ func (p *Pipeline) Width() int {
 // the last feature of a column whose levels were capped.
 func (p *Pipeline) FeatureNames() []string {
 	out := make([]string, 0, p.Width())
-	for i := range p.Steps {
-		s := &p.Steps[i]
+	for i := range p.Encodings {
+		s := &p.Encodings[i]
 		if s.Kind == Categorical {
 			for _, c := range s.Categories {
 				out = append(out, s.Name+"="+c)
@@ -571,9 +602,9 @@ func (p *Pipeline) FeatureNames() []string {
 // Inputs returns the names of the input columns, in the order ApplyStrings
 // expects the fields.
 func (p *Pipeline) Inputs() []string {
-	out := make([]string, len(p.Steps))
-	for i := range p.Steps {
-		out[i] = p.Steps[i].Name
+	out := make([]string, len(p.Encodings))
+	for i := range p.Encodings {
+		out[i] = p.Encodings[i].Name
 	}
 	return out
 }
@@ -587,12 +618,12 @@ func (p *Pipeline) Inputs() []string {
 // returns an error when cols do not match the pipeline's inputs.
 func (p *Pipeline) ApplyColumns(cols []Column, row int, dst []float64) error {
 	dst = p.dst(dst)
-	if len(cols) != len(p.Steps) {
-		return &FieldError{Row: row, Err: fmt.Errorf("%w: %d columns, the pipeline has %d inputs", ErrRagged, len(cols), len(p.Steps))}
+	if len(cols) != len(p.Encodings) {
+		return &FieldError{Row: row, Err: fmt.Errorf("%w: %d columns, the pipeline has %d inputs", ErrRagged, len(cols), len(p.Encodings))}
 	}
 	at := 0
-	for i := range p.Steps {
-		s, c := &p.Steps[i], &cols[i]
+	for i := range p.Encodings {
+		s, c := &p.Encodings[i], &cols[i]
 		if c.Name != s.Name || c.Kind != s.Kind {
 			return &FieldError{Field: c.Name, Row: row, Err: fmt.Errorf("%w: column %d is %q (%v), the pipeline expects %q (%v) there; read the data with the training columns in their order", ErrUnknownField, i, c.Name, c.Kind, s.Name, s.Kind)}
 		}
@@ -626,12 +657,12 @@ func (p *Pipeline) ApplyColumns(cols []Column, row int, dst []float64) error {
 // Width. On error dst holds partial output.
 func (p *Pipeline) ApplyStrings(fields []string, dst []float64) error {
 	dst = p.dst(dst)
-	if len(fields) != len(p.Steps) {
-		return &FieldError{Row: -1, Err: fmt.Errorf("%w: %d fields, the model has %d inputs", ErrRagged, len(fields), len(p.Steps))}
+	if len(fields) != len(p.Encodings) {
+		return &FieldError{Row: -1, Err: fmt.Errorf("%w: %d fields, the model has %d inputs", ErrRagged, len(fields), len(p.Encodings))}
 	}
 	at := 0
-	for i := range p.Steps {
-		s := &p.Steps[i]
+	for i := range p.Encodings {
+		s := &p.Encodings[i]
 		w := s.Width()
 		if err := p.encodeCell(s, fields[i], IsMissing(fields[i], p.Missing), dst[at:at+w]); err != nil {
 			return &FieldError{Field: s.Name, Row: -1, Value: fields[i], Err: err}
@@ -651,15 +682,15 @@ func (p *Pipeline) ApplyStrings(fields []string, dst []float64) error {
 func (p *Pipeline) ApplyMap(fields map[string]string, dst []float64) error {
 	dst = p.dst(dst)
 	found := 0
-	for i := range p.Steps {
-		if _, ok := fields[p.Steps[i].Name]; ok {
+	for i := range p.Encodings {
+		if _, ok := fields[p.Encodings[i].Name]; ok {
 			found++
 		}
 	}
 	if found < len(fields) {
 		var extra []string
 		for k := range fields {
-			if !slices.ContainsFunc(p.Steps, func(s Step) bool { return s.Name == k }) {
+			if !slices.ContainsFunc(p.Encodings, func(s Encoding) bool { return s.Name == k }) {
 				extra = append(extra, k)
 			}
 		}
@@ -667,8 +698,8 @@ func (p *Pipeline) ApplyMap(fields map[string]string, dst []float64) error {
 		return &FieldError{Field: extra[0], Row: -1, Err: ErrUnknownField}
 	}
 	at := 0
-	for i := range p.Steps {
-		s := &p.Steps[i]
+	for i := range p.Encodings {
+		s := &p.Encodings[i]
 		w := s.Width()
 		v, ok := fields[s.Name]
 		if !ok && !p.Impute {
@@ -694,7 +725,7 @@ func (p *Pipeline) dst(dst []float64) []float64 {
 
 // encodeCell parses a raw cell of a numeric step and encodes it; a
 // categorical cell goes to encodeCategory as it is.
-func (p *Pipeline) encodeCell(s *Step, cell string, missing bool, dst []float64) error {
+func (p *Pipeline) encodeCell(s *Encoding, cell string, missing bool, dst []float64) error {
 	if s.Kind == Categorical {
 		return p.encodeCategory(s, cell, missing, dst)
 	}
@@ -710,7 +741,7 @@ func (p *Pipeline) encodeCell(s *Step, cell string, missing bool, dst []float64)
 
 // encodeNumber is the one encoder of numeric values, shared by the
 // training and serving paths. dst has length 1.
-func (p *Pipeline) encodeNumber(s *Step, x float64, missing bool, dst []float64) error {
+func (p *Pipeline) encodeNumber(s *Encoding, x float64, missing bool, dst []float64) error {
 	if missing {
 		if !p.Impute {
 			return ErrMissing
@@ -730,7 +761,7 @@ func (p *Pipeline) encodeNumber(s *Step, x float64, missing bool, dst []float64)
 
 // encodeCategory is the one encoder of categorical values, shared by the
 // training and serving paths. dst has length s.Width().
-func (p *Pipeline) encodeCategory(s *Step, v string, missing bool, dst []float64) error {
+func (p *Pipeline) encodeCategory(s *Encoding, v string, missing bool, dst []float64) error {
 	clear(dst)
 	if missing {
 		if !p.Impute {
@@ -744,7 +775,7 @@ func (p *Pipeline) encodeCategory(s *Step, v string, missing bool, dst []float64
 		dst[j] = 1
 	case s.OtherLevels > 0:
 		dst[len(s.Categories)] = 1 // the "other" feature
-	case !p.UnknownAsZeros:
+	case !p.ZeroUnseen:
 		return ErrUnknownCategory
 	}
 	return nil

@@ -74,13 +74,13 @@ func TestFitByHand(t *testing.T) {
 	// every number here is exact in float64, so the comparisons are exact.
 	// k is constant: mean 10, and no spread, so scale 1 (documented).
 	// site: categories in sorted order, east before north-yard.
-	want := []prep.Step{
+	want := []prep.Encoding{
 		{Name: "x", Kind: prep.Numeric, Mean: 3, Scale: 2},
 		{Name: "k", Kind: prep.Numeric, Mean: 10, Scale: 1},
 		{Name: "site", Kind: prep.Categorical, Scale: 1, Categories: []string{"east", "north-yard"}},
 	}
-	if !reflect.DeepEqual(p.Steps, want) {
-		t.Errorf("steps\n%+v\nwant\n%+v", p.Steps, want)
+	if !reflect.DeepEqual(p.Encodings, want) {
+		t.Errorf("steps\n%+v\nwant\n%+v", p.Encodings, want)
 	}
 	if p.Width() != 4 {
 		t.Errorf("Width %d, want 1 + 1 + 2", p.Width())
@@ -103,7 +103,7 @@ func TestFitByHand(t *testing.T) {
 	// encodes to 3/√(14/3) = 1.38873014965882719235.
 	cols = []prep.Column{num("y", 1, 2, 3, 6)}
 	p = mustFit(t, cols, nil, prep.Options{})
-	if s := p.Steps[0]; s.Mean != 3 || !near(s.Scale, 2.16024689946928674365, ulpTol) {
+	if s := p.Encodings[0]; s.Mean != 3 || !near(s.Scale, 2.16024689946928674365, ulpTol) {
 		t.Errorf("mean %v, scale %.17g; want 3 and 2.160246899469286744", s.Mean, s.Scale)
 	}
 	if got := apply(t, p, cols, 3)[0]; !near(got, 1.38873014965882719235, ulpTol) {
@@ -112,13 +112,13 @@ func TestFitByHand(t *testing.T) {
 
 	// NoStandardize: values pass through, mean 0 and scale 1.
 	p = mustFit(t, cols, nil, prep.Options{NoStandardize: true})
-	if s := p.Steps[0]; s.Mean != 0 || s.Scale != 1 || apply(t, p, cols, 3)[0] != 6 {
+	if s := p.Encodings[0]; s.Mean != 0 || s.Scale != 1 || apply(t, p, cols, 3)[0] != 6 {
 		t.Errorf("NoStandardize: step %+v, row 3 %v; want mean 0, scale 1, value 6", s, apply(t, p, cols, 3))
 	}
 
 	// One training row: no spread, scale 1 (documented), feature 0 on it.
 	p = mustFit(t, cols, []int{2}, prep.Options{})
-	if s := p.Steps[0]; s.Mean != 3 || s.Scale != 1 {
+	if s := p.Encodings[0]; s.Mean != 3 || s.Scale != 1 {
 		t.Errorf("one training row: step %+v, want mean 3 scale 1", s)
 	}
 }
@@ -133,7 +133,7 @@ func TestConstantColumn(t *testing.T) {
 		t.Fatal("test premise: the naive mean of three 0.1s should not be 0.1")
 	}
 	p := mustFit(t, cols, nil, prep.Options{})
-	if s := p.Steps[0]; s.Mean != 0.1 || s.Scale != 1 {
+	if s := p.Encodings[0]; s.Mean != 0.1 || s.Scale != 1 {
 		t.Errorf("step %+v, want mean 0.1 exactly and scale 1", s)
 	}
 	for r := range 3 {
@@ -162,7 +162,7 @@ func TestSpreadFloor(t *testing.T) {
 	// The mean is summed relative to the first value, 1: 1 + (−999/1000),
 	// two roundings of at most 2⁻⁵³ each on values below 1, so within
 	// 2.3e-16 of 0.001.
-	if s := p.Steps[0]; s.Scale != prep.SpreadFloor || math.Abs(s.Mean-0.001) > 2.3e-16 {
+	if s := p.Encodings[0]; s.Scale != prep.SpreadFloor || math.Abs(s.Mean-0.001) > 2.3e-16 {
 		t.Errorf("step %+v, want mean 0.001 and scale %v (the range 1 over 20)", s, prep.SpreadFloor)
 	}
 	// (1 − 0.001)/0.05 in float64: two roundings of relative size 2⁻⁵³.
@@ -205,7 +205,7 @@ func TestPenguinsStatistics(t *testing.T) {
 		{200.9, 0.05, 14.06, 0.005},
 		{4202, 0.5, 801.95, 0.005},
 	} {
-		s := p.Steps[i]
+		s := p.Encodings[i]
 		if math.Abs(s.Mean-w.mean) > w.mtol || math.Abs(s.Scale-w.sd) > w.stol {
 			t.Errorf("%s: mean %.4f, sd %.4f; want %v ± %v and %v ± %v", s.Name, s.Mean, s.Scale, w.mean, w.mtol, w.sd, w.stol)
 		}
@@ -226,7 +226,7 @@ func TestImputeTrainingRowsOnly(t *testing.T) {
 	}
 	train := []int{0, 1, 2, 3}
 	p := mustFit(t, cols, train, prep.Options{Impute: true})
-	x, c := p.Steps[0], p.Steps[1]
+	x, c := p.Encodings[0], p.Encodings[1]
 	if x.Mean != 3 || x.Fill != 3 || !near(x.Scale, 2.16024689946928674365, ulpTol) {
 		t.Errorf("numeric step %+v: want mean and fill 3 from the training rows, scale √(14/3)", x)
 	}
@@ -250,7 +250,7 @@ func TestImputeTrainingRowsOnly(t *testing.T) {
 
 	// Ties with three counts: c ×2, a ×2, b ×1 → "a".
 	p = mustFit(t, []prep.Column{cat("c", "c", "a", "b", "c", "a", "")}, nil, prep.Options{Impute: true})
-	if f := p.Steps[0].FillCategory; f != "a" {
+	if f := p.Encodings[0].FillCategory; f != "a" {
 		t.Errorf("fill %q, want \"a\"", f)
 	}
 }
@@ -284,7 +284,7 @@ func TestUnitNorm(t *testing.T) {
 	// A row of zeros stays zero: a numeric column centred at its only value
 	// and a category unseen in training, encoded as zeros.
 	cols = []prep.Column{num("a", 5), cat("s", "u")}
-	p = mustFit(t, cols, nil, prep.Options{UnitNorm: true, UnknownAsZeros: true})
+	p = mustFit(t, cols, nil, prep.Options{UnitNorm: true, ZeroUnseen: true})
 	dst := make([]float64, p.Width())
 	if err := p.ApplyStrings([]string{"5", "w"}, dst); err != nil || dst[0] != 0 || dst[1] != 0 || math.Signbit(dst[0]) {
 		t.Errorf("zero row: %v, %v; want [0 0]", dst, err)
@@ -375,7 +375,7 @@ func TestServeEqualsTrain(t *testing.T) {
 		for r := 0; r < len(tab.labels); r += 2 {
 			even = append(even, r)
 		}
-		for _, o := range []prep.Options{{Impute: true}, {Impute: true, UnitNorm: true}, {Impute: true, UnknownAsZeros: true}} {
+		for _, o := range []prep.Options{{Impute: true}, {Impute: true, UnitNorm: true}, {Impute: true, ZeroUnseen: true}} {
 			checkServeEqualsTrain(t, mustFit(t, tab.cols, even, o), tab.cols)
 		}
 	})
@@ -386,10 +386,10 @@ func TestServeEqualsTrain(t *testing.T) {
 // long, subnormals and negative zero.
 func TestJSONRoundTrip(t *testing.T) {
 	p := mustFit(t, irisColumns(t), []int{0, 7, 51, 52, 100, 149}, prep.Options{Impute: true, UnitNorm: true})
-	p.Steps = append(p.Steps,
-		prep.Step{Name: "odd", Kind: prep.Numeric, Mean: 0.1 + 0.2, Scale: 1.0 / 3, Fill: 5e-324},
-		prep.Step{Name: "negzero", Kind: prep.Numeric, Mean: math.Copysign(0, -1), Scale: math.Nextafter(1, 2), Fill: -math.MaxFloat64},
-		prep.Step{Name: "site", Kind: prep.Categorical, Scale: 1, Categories: []string{"", "a=b", "ünï\"code\""}, FillCategory: "a=b"},
+	p.Encodings = append(p.Encodings,
+		prep.Encoding{Name: "odd", Kind: prep.Numeric, Mean: 0.1 + 0.2, Scale: 1.0 / 3, Fill: 5e-324},
+		prep.Encoding{Name: "negzero", Kind: prep.Numeric, Mean: math.Copysign(0, -1), Scale: math.Nextafter(1, 2), Fill: -math.MaxFloat64},
+		prep.Encoding{Name: "site", Kind: prep.Categorical, Scale: 1, Categories: []string{"", "a=b", "ünï\"code\""}, FillCategory: "a=b"},
 	)
 	p.Missing = []string{"?", " - "}
 	b, err := json.Marshal(p)
@@ -403,8 +403,8 @@ func TestJSONRoundTrip(t *testing.T) {
 	if !reflect.DeepEqual(p, &q) {
 		t.Fatalf("round trip differs:\n%+v\n%+v", p, &q)
 	}
-	for i := range p.Steps {
-		for _, f := range []struct{ a, b float64 }{{p.Steps[i].Mean, q.Steps[i].Mean}, {p.Steps[i].Scale, q.Steps[i].Scale}, {p.Steps[i].Fill, q.Steps[i].Fill}} {
+	for i := range p.Encodings {
+		for _, f := range []struct{ a, b float64 }{{p.Encodings[i].Mean, q.Encodings[i].Mean}, {p.Encodings[i].Scale, q.Encodings[i].Scale}, {p.Encodings[i].Fill, q.Encodings[i].Fill}} {
 			if math.Float64bits(f.a) != math.Float64bits(f.b) {
 				t.Errorf("step %d: %v (%#x) decoded as %v (%#x)", i, f.a, math.Float64bits(f.a), f.b, math.Float64bits(f.b))
 			}
@@ -427,13 +427,13 @@ func TestValidate(t *testing.T) {
 		t.Fatal(err)
 	}
 	for what, damage := range map[string]func(p *prep.Pipeline){
-		"zero scale":     func(p *prep.Pipeline) { p.Steps[0].Scale = 0 },
-		"NaN mean":       func(p *prep.Pipeline) { p.Steps[0].Mean = math.NaN() },
-		"unsorted":       func(p *prep.Pipeline) { p.Steps[1].Categories = []string{"b", "a"} },
-		"no categories":  func(p *prep.Pipeline) { p.Steps[1].Categories = nil },
-		"duplicate name": func(p *prep.Pipeline) { p.Steps[1].Name = "x" },
-		"auto kind":      func(p *prep.Pipeline) { p.Steps[0].Kind = prep.Auto },
-		"no steps":       func(p *prep.Pipeline) { p.Steps = nil },
+		"zero scale":     func(p *prep.Pipeline) { p.Encodings[0].Scale = 0 },
+		"NaN mean":       func(p *prep.Pipeline) { p.Encodings[0].Mean = math.NaN() },
+		"unsorted":       func(p *prep.Pipeline) { p.Encodings[1].Categories = []string{"b", "a"} },
+		"no categories":  func(p *prep.Pipeline) { p.Encodings[1].Categories = nil },
+		"duplicate name": func(p *prep.Pipeline) { p.Encodings[1].Name = "x" },
+		"auto kind":      func(p *prep.Pipeline) { p.Encodings[0].Kind = prep.Auto },
+		"no steps":       func(p *prep.Pipeline) { p.Encodings = nil },
 	} {
 		p := good()
 		damage(p)
@@ -611,7 +611,7 @@ func FuzzApplyStrings(f *testing.F) {
 	}
 	cols := []prep.Column{num("x", -1e300, 1e-300, 1e300), cat("c", "a", "b", "b")}
 	ps := []*prep.Pipeline{}
-	for _, o := range []prep.Options{{}, {Impute: true, UnitNorm: true, UnknownAsZeros: true}, {NoStandardize: true, UnitNorm: true, Missing: []string{}}, {Impute: true, LevelCap: 1}} {
+	for _, o := range []prep.Options{{}, {Impute: true, UnitNorm: true, ZeroUnseen: true}, {NoStandardize: true, UnitNorm: true, Missing: []string{}}, {Impute: true, LevelCap: 1}} {
 		p, err := prep.Fit(cols, nil, o)
 		if err != nil {
 			f.Fatal(err)

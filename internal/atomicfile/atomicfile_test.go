@@ -149,7 +149,7 @@ func TestKilledWriter(t *testing.T) {
 		t.Skip("no advisory locks here: leftovers are removed after a day")
 	}
 	dir := t.TempDir()
-	path := filepath.Join(dir, "run.ckpt")
+	path := filepath.Join(dir, "run.checkpoint")
 	cmd := exec.Command(os.Args[0], "-test.run=^TestKilledWriter$")
 	cmd.Env = append(os.Environ(), "ATOMICFILE_WRITER="+path)
 	out, err := cmd.StdoutPipe()

@@ -121,7 +121,7 @@ func TestIrisCrossValidated(t *testing.T) {
 	if err != nil {
 		t.Fatal(err)
 	}
-	folds, err := data.KFold(labels, 5, 1)
+	folds, err := data.Folds(labels, 5, 1)
 	if err != nil {
 		t.Fatal(err)
 	}

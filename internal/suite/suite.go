@@ -314,7 +314,7 @@ func Split(t *data.Table, seed uint64) (train, test []int, err error) {
 // not seen in the fitting rows encoded as zeros. The last matters for rare
 // categories: ad_data's Genotype E2E2 has 2 rows of 333, and a split may
 // leave both out of the fitting rows.
-var Prep = prep.Options{Impute: true, UnknownAsZeros: true}
+var Prep = prep.Options{Impute: true, ZeroUnseen: true}
 
 // Encode fits the suite's preprocessing (Prep) on the rows fit of t and
 // returns the pipeline and the float64 Sets of fit and of each of others,

@@ -44,7 +44,7 @@ func Bind[R any](m *Model) (*Binding[R], error) {
 	if t.Kind() != reflect.Struct {
 		return nil, fmt.Errorf("classify: Bind: %v is not a struct type", t)
 	}
-	steps := m.pipeline.Steps
+	steps := m.pipeline.Encodings
 	at := make(map[string]int, len(steps))
 	for i := range steps {
 		at[steps[i].Name] = i
@@ -107,12 +107,12 @@ func Bind[R any](m *Model) (*Binding[R], error) {
 // columns returns the Work's one-row columns, made on first use.
 func (w *Work) columns(p *prep.Pipeline) []prep.Column {
 	if w.cols == nil {
-		n := len(p.Steps)
+		n := len(p.Encodings)
 		w.cols = make([]prep.Column, n)
 		w.num, w.cat, w.miss = make([]float64, n), make([]string, n), make([]bool, n)
-		for i := range p.Steps {
+		for i := range p.Encodings {
 			c := &w.cols[i]
-			c.Name, c.Kind = p.Steps[i].Name, p.Steps[i].Kind
+			c.Name, c.Kind = p.Encodings[i].Name, p.Encodings[i].Kind
 			c.Missing = w.miss[i : i+1]
 			if c.Kind == prep.Numeric {
 				c.Num = w.num[i : i+1]

@@ -182,7 +182,7 @@ func TestCheckpointResume(t *testing.T) {
 	}}
 	tr := run(part, stop, nil)
 	st := tr.State()
-	path := filepath.Join(t.TempDir(), "run.ckpt")
+	path := filepath.Join(t.TempDir(), "run.checkpoint")
 	// The kept parameters (a copy of the weights at step 7, widened) and
 	// the session record must come back exactly: float64 bytes in, float64
 	// bytes out, and the record as it was written.

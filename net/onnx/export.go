@@ -366,8 +366,8 @@ func (g *graph) pipeline(p *prep.Pipeline, width int) (string, []string, error) 
 	var mean, scale, fill []float32
 	var numAt, catAt []int64 // feature positions of the numeric and one-hot features
 	standardize, at := false, 0
-	for i := range p.Steps {
-		s := &p.Steps[i]
+	for i := range p.Encodings {
+		s := &p.Encodings[i]
 		if s.Kind == prep.Numeric {
 			var vals [3]float32
 			for j, v := range []float64{s.Mean, s.Scale, s.Fill} {

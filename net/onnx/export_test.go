@@ -314,7 +314,7 @@ func TestStructure(t *testing.T) {
 	// The standardization constants are the pipeline's, rounded to float32.
 	mean, scale := m.inits["pre/mean"].floats(), m.inits["pre/scale"].floats()
 	for j, col := range []int{0, 2, 4} { // mass, temp, ratio
-		s := p.Steps[col]
+		s := p.Encodings[col]
 		if mean[j] != float32(s.Mean) || scale[j] != float32(s.Scale) {
 			t.Errorf("column %q: mean %v scale %v, want float32 of %v, %v", s.Name, mean[j], scale[j], s.Mean, s.Scale)
 		}
@@ -538,7 +538,7 @@ func TestLevelCapExport(t *testing.T) {
 		{Name: "shift", Kind: prep.Categorical, Cat: []string{"day", "night", "day", "night", "day", "night", "day", "night"}},
 	}
 	p := fitPipeline(t, table{cols: cols, rows: 8}, prep.Options{LevelCap: 2, NoStandardize: true})
-	if s := p.Steps[1]; !slices.Equal(s.Categories, []string{"n1", "n2"}) || s.OtherLevels != 3 {
+	if s := p.Encodings[1]; !slices.Equal(s.Categories, []string{"n1", "n2"}) || s.OtherLevels != 3 {
 		t.Fatalf("test premise: lot step %+v, want kept [n1 n2] and 3 others", s)
 	}
 	names := p.FeatureNames()

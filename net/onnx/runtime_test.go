@@ -115,8 +115,8 @@ func prepare[T net.Float](t *testing.T, name string, m *modelfile.Model[T], tb t
 			}
 			sh := shadow{a: make([]float64, len(pre)), e: make([]float64, len(pre))}
 			at := 0
-			for i := range p.Steps {
-				s := &p.Steps[i]
+			for i := range p.Encodings {
+				s := &p.Encodings[i]
 				if s.Kind == prep.Categorical {
 					for range s.Width() { // with the "other" feature of a capped column
 						cat = append(cat, float32(pre[at])) // exactly 0 or 1
@@ -462,7 +462,7 @@ func runtimeCases(t *testing.T) []runtimeCase {
 		p := fitPipeline(t, numeric, prep.Options{UnitNorm: true})
 		for i := range numeric.cols {
 			num := append([]float64(nil), numeric.cols[i].Num...)
-			num[0] = p.Steps[i].Mean // row 0 encodes to zeros
+			num[0] = p.Encodings[i].Mean // row 0 encodes to zeros
 			numeric.cols[i].Num = num
 		}
 		n := build[float64](t, p.Width(), 3, func(b *net.Builder[float64]) {
@@ -543,7 +543,7 @@ func levelCapTable(t *testing.T, rng *rand.Rand, rows int) (table, *prep.Pipelin
 	}
 	tb.cols = append([]prep.Column{tb.cols[0], lot}, tb.cols[1:]...)
 	p := fitPipeline(t, tb, prep.Options{LevelCap: 4, Impute: true, UnitNorm: true})
-	s := p.Steps[1]
+	s := p.Encodings[1]
 	if s.OtherLevels == 0 {
 		t.Fatalf("test premise: the lot column should exceed the cap: %+v", s)
 	}

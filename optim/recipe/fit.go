@@ -217,7 +217,7 @@ type Prepared[T net.Float] struct {
 	// category they hold that no training row has (column, value, file and
 	// line), when there is one; those
 	// rows are encoded with that category as all zeros (as serving does
-	// with prep.Options.UnknownAsZeros), so that a rare level the split
+	// with prep.Options.ZeroUnseen), so that a rare level the split
 	// left out of the training rows does not fail the run.
 	Unseen []string
 }
@@ -271,11 +271,11 @@ func Prepare[T net.Float](t *data.Table, s Split) (*Prepared[T], error) {
 		if i > 0 && errors.Is(err, prep.ErrUnknownCategory) {
 			// A category that only the held-out rows have (a rare level
 			// the stratified split put there) must not fail the run: those
-			// rows are scored as serving with UnknownAsZeros would see
+			// rows are scored as serving with ZeroUnseen would see
 			// them, and the caller is told.
 			p.Unseen = append(p.Unseen, unseenWhere(err))
 			lenient := *pl
-			lenient.UnknownAsZeros = true
+			lenient.ZeroUnseen = true
 			sets[i], err = data.Encode[T](t, rows, &lenient, classes)
 		}
 		if err != nil {

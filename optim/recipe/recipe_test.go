@@ -430,7 +430,7 @@ func TestResolvedEpochs(t *testing.T) {
 // TestPrepareUnseenCategory: a categorical column whose every row has its
 // own level (an identifier, say) leaves the held-out rows with levels no
 // training row has. Prepare must not fail: it encodes them with an
-// all-zero one-hot block, as serving does with UnknownAsZeros, and says
+// all-zero one-hot block, as serving does with ZeroUnseen, and says
 // so in Unseen. (Invented data: the property holds for any table.)
 func TestPrepareUnseenCategory(t *testing.T) {
 	const n = 20

@@ -58,7 +58,7 @@ func TestUnknownFields(t *testing.T) {
 // TestFilledFields: a row that leaves a field absent, null or a
 // missing-value marker is classified with the pipeline's fill value for
 // that field — the training mean for a number, the most frequent training
-// category for a category (prep.Step.Fill, FillCategory) — and its answer
+// category for a category (prep.Encoding.Fill, FillCategory) — and its answer
 // lists the field in "filled_fields"; a complete row lists none.
 func TestFilledFields(t *testing.T) {
 	m := load(t, models(t)[0])
@@ -67,7 +67,7 @@ func TestFilledFields(t *testing.T) {
 		t.Fatalf("the demo pipeline should impute and read NA as missing: %v %q", p.Impute, p.Missing)
 	}
 	fill := map[string]string{}
-	for _, s := range p.Steps {
+	for _, s := range p.Encodings {
 		if s.Kind == prep.Numeric {
 			fill[s.Name] = strconv.FormatFloat(s.Fill, 'g', -1, 64) // shortest text that reads back to the same bits
 		} else {
