@@ -36,10 +36,15 @@ import (
 //	D       …     tensor data: each tensor at D + its offset, little-endian
 //	end−32  32    SHA-256 of every byte before it
 const (
-	Magic     = "RHOMBMF\n"
-	Version   = 1
-	PrefixLen = 16 // magic, version and header length
-	SumLen    = sha256.Size
+	Magic   = "RHOMBMF\n"
+	Version = 2
+	// OldestVersion is the oldest format version Parse reads: version 1
+	// named the header's array table "tensors", with "dtype", "shape" and
+	// "offset" per entry; version 2 names them "arrays", "type", "dims"
+	// and "at". The layout is otherwise the same.
+	OldestVersion = 1
+	PrefixLen     = 16 // magic, version and header length
+	SumLen        = sha256.Size
 	// Format is the header's "format" field in every model file.
 	Format = "rhomb-model"
 	// MaxHeader caps the header length a file may declare (64 MiB); the
@@ -96,9 +101,24 @@ func fail(off int64, err error, format string, args ...any) (*File, error) {
 type Tensor struct {
 	Name   string `json:"name"`
 	Role   string `json:"role"`
-	DType  string `json:"dtype"` // "float32", "float64" or "int32"
+	DType  string `json:"type"` // "float32", "float64" or "int32"
+	Shape  []int  `json:"dims"`
+	Offset int64  `json:"at"` // from the start of the data region
+}
+
+// TensorV1 is an entry of a version-1 file's table, by its old field
+// names; V2 converts it.
+type TensorV1 struct {
+	Name   string `json:"name"`
+	Role   string `json:"role"`
+	DType  string `json:"dtype"`
 	Shape  []int  `json:"shape"`
-	Offset int64  `json:"offset"` // from the start of the tensor data
+	Offset int64  `json:"offset"`
+}
+
+// V2 is t as a version-2 entry.
+func (t TensorV1) V2() Tensor {
+	return Tensor{Name: t.Name, Role: t.Role, DType: t.DType, Shape: t.Shape, Offset: t.Offset}
 }
 
 // ElemSize is the size in bytes of one element of dtype d, or 0 for a
@@ -116,6 +136,7 @@ func ElemSize(d string) int64 {
 // File is a container that passed every check of Parse. Its slices alias
 // the bytes given to Parse.
 type File struct {
+	Version   uint32 // the file's format version
 	Header    []byte // the raw header JSON, H bytes
 	Data      []byte // the tensor data region
 	DataStart int64  // offset of Data in the file
@@ -140,15 +161,16 @@ type File struct {
 //
 // Every size and offset is checked against len(b) before it is used, so a
 // file that lies about its contents costs no more memory than its table.
-func Parse(b []byte, decode func(header []byte) ([]Tensor, error)) (*File, error) {
+func Parse(b []byte, decode func(header []byte, version uint32) ([]Tensor, error)) (*File, error) {
 	if len(b) < PrefixLen+SumLen {
 		return fail(int64(len(b)), ErrTruncated, "%d bytes is shorter than the smallest model file", len(b))
 	}
 	if string(b[:8]) != Magic {
 		return fail(0, ErrMagic, "")
 	}
-	if v := binary.LittleEndian.Uint32(b[8:]); v != Version {
-		return fail(8, ErrVersion, "version %d; this library reads version %d — use the rhomb release that wrote it", v, Version)
+	version := binary.LittleEndian.Uint32(b[8:])
+	if version < OldestVersion || version > Version {
+		return fail(8, ErrVersion, "version %d; this library reads versions %d to %d — use the rhomb release that wrote it", version, OldestVersion, Version)
 	}
 	hl := int64(binary.LittleEndian.Uint32(b[12:]))
 	if hl > MaxHeader {
@@ -157,8 +179,8 @@ func Parse(b []byte, decode func(header []byte) ([]Tensor, error)) (*File, error
 	if PrefixLen+hl+SumLen > int64(len(b)) {
 		return fail(12, ErrTruncated, "header of %d bytes does not fit in %d bytes", hl, len(b))
 	}
-	f := &File{Header: b[PrefixLen : PrefixLen+hl]}
-	tensors, err := decode(f.Header)
+	f := &File{Header: b[PrefixLen : PrefixLen+hl], Version: version}
+	tensors, err := decode(f.Header, version)
 	if err != nil {
 		var ce *Error
 		if errors.As(err, &ce) {

@@ -10,9 +10,9 @@ import (
 )
 
 // tableOnly decodes just the tensor table, as a reader's decode would.
-func tableOnly(raw []byte) ([]Tensor, error) {
+func tableOnly(raw []byte, version uint32) ([]Tensor, error) {
 	var h struct {
-		Tensors []Tensor `json:"tensors"`
+		Tensors []Tensor `json:"arrays"`
 	}
 	if err := json.Unmarshal(raw, &h); err != nil {
 		return nil, err
@@ -22,11 +22,11 @@ func tableOnly(raw []byte) ([]Tensor, error) {
 
 // handBuilt lays out a file byte by byte from the table in
 // docs/model-file.md ("Layout"), independently of Assemble: magic, uint32
-// version 1, uint32 H, H header bytes, zeros to a multiple of 8, the data,
+// version 2, uint32 H, H header bytes, zeros to a multiple of 8, the data,
 // then the SHA-256 of everything before.
 func handBuilt(header string, data []byte) []byte {
 	b := []byte("RHOMBMF\n")
-	b = binary.LittleEndian.AppendUint32(b, 1)
+	b = binary.LittleEndian.AppendUint32(b, 2)
 	b = binary.LittleEndian.AppendUint32(b, uint32(len(header)))
 	b = append(b, header...)
 	for len(b)%8 != 0 {
@@ -39,7 +39,7 @@ func handBuilt(header string, data []byte) []byte {
 
 // A float32 tensor of shape [3] is 12 bytes, padded to 16; a float64 of
 // shape [1] at offset 16 is 8 more: 24 bytes of data.
-const twoTensors = `{"tensors":[{"name":"a","role":"weight","dtype":"float32","shape":[3],"offset":0},{"name":"b","role":"param","dtype":"float64","shape":[1],"offset":16}]}`
+const twoTensors = `{"arrays":[{"name":"a","role":"weight","type":"float32","dims":[3],"at":0},{"name":"b","role":"param","type":"float64","dims":[1],"at":16}]}`
 
 func TestAssembleMatchesLayout(t *testing.T) {
 	data := make([]byte, 24)
@@ -75,7 +75,7 @@ func TestParseErrors(t *testing.T) {
 	data := make([]byte, 24)
 	good := handBuilt(twoTensors, data)
 	withTable := func(table string, data []byte) []byte {
-		return handBuilt(`{"tensors":[`+table+`]}`, data)
+		return handBuilt(`{"arrays":[`+table+`]}`, data)
 	}
 	patch := func(at int, v uint32) []byte {
 		b := append([]byte(nil), good...)
@@ -85,7 +85,7 @@ func TestParseErrors(t *testing.T) {
 	flipped := append([]byte(nil), good...)
 	flipped[len(flipped)-40] ^= 1
 	tn := func(name, dtype, shape string, off int) string {
-		return fmt.Sprintf(`{"name":%q,"role":"weight","dtype":%q,"shape":%s,"offset":%d}`, name, dtype, shape, off)
+		return fmt.Sprintf(`{"name":%q,"role":"weight","type":%q,"dims":%s,"at":%d}`, name, dtype, shape, off)
 	}
 	// Each offset is where docs/model-file.md puts the faulty field.
 	for _, c := range []struct {
@@ -97,10 +97,10 @@ func TestParseErrors(t *testing.T) {
 	}{
 		{"shorter than prefix and checksum", good[:47], ErrTruncated, 47, false},
 		{"magic", append([]byte("RHOMBMX\n"), good[8:]...), ErrMagic, 0, false},
-		{"version 2", patch(8, 2), ErrVersion, 8, false},
+		{"version 3", patch(8, 3), ErrVersion, 8, false},
 		{"header over 64 MiB", patch(12, 64<<20+1), ErrHeader, 12, false},
 		{"header past the end", patch(12, uint32(len(good))), ErrTruncated, 12, false},
-		{"header not JSON", handBuilt(`{"tensors":`, data), ErrHeader, 16, false},
+		{"header not JSON", handBuilt(`{"arrays":`, data), ErrHeader, 16, false},
 		{"unknown dtype", withTable(tn("a", "int8", "[1]", 0), make([]byte, 8)), ErrHeader, 16, false},
 		{"name twice", withTable(tn("a", "int32", "[1]", 0)+","+tn("a", "int32", "[1]", 8), make([]byte, 16)), ErrHeader, 16, false},
 		{"negative dimension", withTable(tn("a", "int32", "[-1]", 0), make([]byte, 8)), ErrTruncated, 16, false},

@@ -11,14 +11,14 @@ import (
 // A reader decodes the header into its own type inside Parse's callback,
 // and gets back a checked tensor table and the data region.
 func Example() {
-	header := []byte(`{"format":"rhomb-model","tensors":[{"name":"w","role":"weight","dtype":"int32","shape":[2],"offset":0}]}`)
+	header := []byte(`{"format":"rhomb-model","arrays":[{"name":"w","role":"weight","type":"int32","dims":[2],"at":0}]}`)
 	file := container.Assemble(header, []byte{1, 0, 0, 0, 2, 0, 0, 0})
 
 	var h struct {
 		Format  string             `json:"format"`
-		Tensors []container.Tensor `json:"tensors"`
+		Tensors []container.Tensor `json:"arrays"`
 	}
-	decode := func(raw []byte) ([]container.Tensor, error) {
+	decode := func(raw []byte, version uint32) ([]container.Tensor, error) {
 		if err := json.Unmarshal(raw, &h); err != nil {
 			return nil, err
 		}

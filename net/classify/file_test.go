@@ -87,7 +87,7 @@ func TestReadRefuses(t *testing.T) {
 		{"NaN weight", nanWeight, classify.ErrWeight},
 		{"wrong shape", reseal(good, func(h string) string { return strings.Replace(h, `"units":4`, `"units":5`, 1) }), classify.ErrShape},
 		{"missing weight", reseal(good, func(h string) string { return strings.Replace(h, `"h.W"`, `"h.X"`, 1) }), classify.ErrShape},
-		{"overlap", reseal(good, func(h string) string { return strings.Replace(h, `"offset":128`, `"offset":0`, 1) }), classify.ErrTruncated},
+		{"overlap", reseal(good, func(h string) string { return strings.Replace(h, `"at":128`, `"at":0`, 1) }), classify.ErrTruncated},
 		{"unknown kind", reseal(good, func(h string) string { return strings.Replace(h, `"kind":"relu"`, `"kind":"gelu"`, 1) }), classify.ErrShape},
 		{"unknown field", reseal(good, func(h string) string { return strings.Replace(h, `{"format"`, `{"colour":1,"format"`, 1) }), classify.ErrHeader},
 		{"dtype", reseal(good, func(h string) string {
@@ -103,7 +103,7 @@ func TestReadRefuses(t *testing.T) {
 			t.Errorf("%s: the training library's reader accepts the file classify refuses", tc.name)
 		}
 	}
-	if !strings.Contains(string(good), `"offset":128`) {
+	if !strings.Contains(string(good), `"at":128`) {
 		t.Fatal("the overlap case assumes the second tensor at offset 128; the file layout changed")
 	}
 }

@@ -259,13 +259,13 @@ func TestBadFiles(t *testing.T) {
 	}{
 		{"empty", nil, modelfile.ErrTruncated},
 		{"magic", append([]byte("NOTAMODL"), good[8:]...), modelfile.ErrMagic},
-		{"version", fix(append(append(append([]byte(nil), good[:8]...), 2, 0, 0, 0), good[12:]...)), modelfile.ErrVersion},
+		{"version", fix(append(append(append([]byte(nil), good[:8]...), 3, 0, 0, 0), good[12:]...)), modelfile.ErrVersion},
 		{"cut in the header", good[:40], modelfile.ErrTruncated},
 		{"cut in the data", good[:len(good)-100], modelfile.ErrTruncated},
 		{"one byte flipped", func() []byte { b := append([]byte(nil), good...); b[len(b)-60] ^= 1; return b }(), modelfile.ErrChecksum},
 		{"trailing byte", fix(append(append([]byte(nil), good...), 0)), modelfile.ErrTruncated},
 		{"units changed", withHeader(strings.Replace(headerJSON, `"units":7`, `"units":8`, 1)), modelfile.ErrShape},
-		{"huge shape", withHeader(strings.Replace(headerJSON, `"shape":[7,6]`, `"shape":[700000000,6000000]`, 1)), modelfile.ErrTruncated},
+		{"huge shape", withHeader(strings.Replace(headerJSON, `"dims":[7,6]`, `"dims":[700000000,6000000]`, 1)), modelfile.ErrTruncated},
 		{"unknown field", withHeader(strings.Replace(headerJSON, `"format"`, `"colour":1,"format"`, 1)), modelfile.ErrHeader},
 	}
 	for _, c := range cases {

@@ -56,11 +56,11 @@ type Param struct {
 // *Error naming source and the byte offset.
 func Parse(b []byte, source string) (*File, error) {
 	p := &parser{source: source}
-	cf, err := container.Parse(b, func(raw []byte) ([]container.Tensor, error) {
+	cf, err := container.Parse(b, func(raw []byte, version uint32) ([]container.Tensor, error) {
 		if err := prescan(raw); err != nil {
 			return nil, err
 		}
-		if err := decodeStrict(raw, &p.f.Header); err != nil {
+		if err := decodeHeader(raw, version, &p.f.Header); err != nil {
 			return nil, err
 		}
 		h := &p.f.Header
@@ -85,6 +85,30 @@ func Parse(b []byte, source string) (*File, error) {
 		}
 	}
 	return f, nil
+}
+
+// decodeHeader decodes the header of a file of the given format version
+// strictly: version 1 named the array table "tensors", its entries'
+// fields "dtype", "shape" and "offset".
+func decodeHeader(raw []byte, version uint32, h *Header) error {
+	if version >= 2 {
+		return decodeStrict(raw, h)
+	}
+	var v1 struct {
+		Header
+		Tensors []container.TensorV1 `json:"tensors"`
+	}
+	if err := decodeStrict(raw, &v1); err != nil {
+		return err
+	}
+	if v1.Header.Tensors != nil {
+		return fmt.Errorf(`a version-1 header with the version-2 field "arrays"`)
+	}
+	*h = v1.Header
+	for _, t := range v1.Tensors {
+		h.Tensors = append(h.Tensors, t.V2())
+	}
+	return nil
 }
 
 // decodeStrict decodes JSON refusing fields v does not have, and anything

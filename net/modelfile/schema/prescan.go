@@ -21,7 +21,7 @@ const (
 
 // prescan checks raw, the header's JSON, against MaxString, MaxValues,
 // MaxDepth, MaxNodes (the elements of the top-level "graph") and
-// MaxTensors (of "tensors"). It reads each byte once and allocates
+// MaxTensors (of "arrays", or "tensors" in a version-1 file). It reads each byte once and allocates
 // nothing; it does not validate the JSON, which the decoder then does.
 func prescan(raw []byte) error {
 	var (
@@ -74,14 +74,14 @@ func prescan(raw []byte) error {
 			if counting == "graph" && count > MaxNodes {
 				return fmt.Errorf("the graph has more than %d nodes, the limit", MaxNodes)
 			}
-			if counting == "tensors" && count > MaxTensors {
+			if (counting == "arrays" || counting == "tensors") && count > MaxTensors {
 				return fmt.Errorf("more than %d tensors, the limit", MaxTensors)
 			}
 		}
 		switch c {
 		case '"':
 		case '{', '[':
-			if c == '[' && depth == 1 && (key == "graph" || key == "tensors") {
+			if c == '[' && depth == 1 && (key == "graph" || key == "arrays" || key == "tensors") {
 				counting, count = key, 0
 			}
 			depth++

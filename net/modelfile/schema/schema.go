@@ -23,10 +23,12 @@ import (
 
 // The layout and the limits (see docs/model-file.md).
 const (
-	Magic     = container.Magic
-	Version   = container.Version
-	PrefixLen = container.PrefixLen
-	SumLen    = container.SumLen
+	Magic   = container.Magic
+	Version = container.Version
+	// OldestVersion is the oldest format version the readers accept.
+	OldestVersion = container.OldestVersion
+	PrefixLen     = container.PrefixLen
+	SumLen        = container.SumLen
 	// Format is the header's "format" field in every model file.
 	Format     = container.Format
 	MaxHeader  = container.MaxHeader
@@ -86,7 +88,7 @@ type Header struct {
 	Inputs        int             `json:"inputs"`
 	Graph         []Node          `json:"graph"`
 	Normalization *Normalization  `json:"normalization,omitempty"`
-	Tensors       []Tensor        `json:"tensors"`
+	Tensors       []Tensor        `json:"arrays"`
 	Pipeline      json.RawMessage `json:"pipeline,omitempty"` // data/prep's Pipeline
 	Classes       []string        `json:"classes,omitempty"`
 	Label         string          `json:"label,omitempty"`
@@ -211,7 +213,8 @@ type Checkpoint struct {
 	Session json.RawMessage `json:"session,omitempty"`
 }
 
-// Tensor is one entry of the header's "tensors" table.
+// Tensor is one entry of the header's "arrays" table: a named, typed
+// array of numbers in the data region ("tensors" in format version 1).
 type Tensor = container.Tensor
 
 // Sentinel causes carried by *Error; errors.Is finds them.

@@ -1,6 +1,8 @@
 package schema_test
 
 import (
+	"crypto/sha256"
+	"encoding/binary"
 	"errors"
 	"fmt"
 	"runtime"
@@ -16,7 +18,7 @@ import (
 // two float64 ones.
 func file(graph, extra string) []byte {
 	h := `{"format":"rhomb-model","library":"test","dtype":"float64","inputs":2,"graph":` + graph +
-		`,"tensors":[{"name":"out.W","role":"weight","dtype":"float64","shape":[1,2],"offset":0}]` + extra + `}`
+		`,"arrays":[{"name":"out.W","role":"weight","type":"float64","dims":[1,2],"at":0}]` + extra + `}`
 	data := make([]byte, 16)
 	data[6], data[7], data[14], data[15] = 0xf0, 0x3f, 0xf0, 0x3f // 1.0, 1.0 little-endian
 	return schema.Assemble([]byte(h), data)
@@ -150,4 +152,49 @@ func TestAcceptedHeaderCost(t *testing.T) {
 	if got > bound {
 		t.Fatalf("parsing allocated %d bytes, over the stated bound %d", got, bound)
 	}
+}
+
+// TestVersion1Reads: a file of format version 1 — the array table named
+// "tensors", its entries' fields "dtype", "shape" and "offset" — reads to
+// the same model as the version-2 file; a version-1 header that uses the
+// version-2 name is refused, and so is a version-2 header with the old.
+func TestVersion1Reads(t *testing.T) {
+	v2 := file(oneLayer, "")
+	hl := binary.LittleEndian.Uint32(v2[12:])
+	old := strings.NewReplacer(`"arrays"`, `"tensors"`, `"type":"float64","dims"`, `"dtype":"float64","shape"`, `"at":0`, `"offset":0`).Replace(string(v2[16 : 16+hl]))
+	v1 := reassemble(old, v2, 1)
+	a, err := schema.Parse(v2, "v2.model")
+	if err != nil {
+		t.Fatal(err)
+	}
+	b, err := schema.Parse(v1, "v1.model")
+	if err != nil {
+		t.Fatal(err)
+	}
+	if fmt.Sprint(a.Header.Tensors, a.Trainable, a.Widths) != fmt.Sprint(b.Header.Tensors, b.Trainable, b.Widths) {
+		t.Fatalf("version 1 reads as %+v, version 2 as %+v", b.Header.Tensors, a.Header.Tensors)
+	}
+	if _, err := schema.Parse(reassemble(string(v2[16:16+hl]), v2, 1), "mixed.model"); !errors.Is(err, schema.ErrHeader) {
+		t.Errorf("a version-1 file with the version-2 table: %v", err)
+	}
+	if _, err := schema.Parse(reassemble(old, v2, 2), "mixed.model"); !errors.Is(err, schema.ErrHeader) {
+		t.Errorf("a version-2 file with the version-1 table: %v", err)
+	}
+}
+
+// reassemble lays out a file with header h, the data region of like, and
+// the given format version (docs/model-file.md, "Layout"), by hand.
+func reassemble(h string, like []byte, version uint32) []byte {
+	hl := binary.LittleEndian.Uint32(like[12:])
+	data := like[(16+int(hl)+7)/8*8 : len(like)-32]
+	b := []byte(schema.Magic)
+	b = binary.LittleEndian.AppendUint32(b, version)
+	b = binary.LittleEndian.AppendUint32(b, uint32(len(h)))
+	b = append(b, h...)
+	for len(b)%8 != 0 {
+		b = append(b, 0)
+	}
+	b = append(b, data...)
+	sum := sha256.Sum256(b)
+	return append(b, sum[:]...)
 }
