@@ -1,6 +1,6 @@
 package net
 
-import "github.com/rhomb/rhomb/net/modelfile/schema"
+import "github.com/rhomb/rhomb/net/schema"
 
 import "fmt"
 

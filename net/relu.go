@@ -2,7 +2,7 @@ package net
 
 import (
 	"fmt"
-	"github.com/rhomb/rhomb/net/modelfile/schema"
+	"github.com/rhomb/rhomb/net/schema"
 
 	"github.com/rhomb/rhomb/internal/kern"
 )

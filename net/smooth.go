@@ -3,7 +3,7 @@ package net
 import (
 	"fmt"
 	"github.com/rhomb/rhomb/internal/arith"
-	"github.com/rhomb/rhomb/net/modelfile/schema"
+	"github.com/rhomb/rhomb/net/schema"
 	"math"
 )
 

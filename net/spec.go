@@ -3,13 +3,13 @@ package net
 import (
 	"errors"
 	"fmt"
-	"github.com/rhomb/rhomb/net/modelfile/schema"
+	"github.com/rhomb/rhomb/net/schema"
 )
 
 // NodeSpec describes one built-in node: enough to build it again. Model
 // files store a network as its input width and the list of its NodeSpecs;
 // the type, and the names of the kinds, belong to the model file format
-// (package net/modelfile/schema).
+// (package net/schema).
 type NodeSpec = schema.Node
 
 // ErrCustomNode is returned by Spec for a network holding a node type of

@@ -8,7 +8,7 @@ import (
 // State is everything a Trainer carries from step to step besides the
 // model's parameters: counters, the epoch's batch order, both random
 // streams and the momentum buffers. Saved with the parameters (see package
-// net/modelfile) it lets a run resume and reach the same bits as a run
+// optim/modelfile) it lets a run resume and reach the same bits as a run
 // that was never interrupted, given the same model, data and Settings.
 type State struct {
 	Step      int     `json:"step"`

@@ -6,7 +6,7 @@ import (
 	"strconv"
 	"testing"
 
-	"github.com/rhomb/rhomb/net/modelfile"
+	"github.com/rhomb/rhomb/optim/modelfile"
 )
 
 // TestCheckScores: check reports balanced accuracy and macro-F1, and for

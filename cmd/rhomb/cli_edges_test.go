@@ -22,7 +22,7 @@ import (
 	"unicode/utf8"
 
 	"github.com/rhomb/rhomb/internal/version"
-	"github.com/rhomb/rhomb/net/modelfile"
+	"github.com/rhomb/rhomb/optim/modelfile"
 )
 
 // TestFlagErrorIsOneLine: a flag that does not parse gives one line that

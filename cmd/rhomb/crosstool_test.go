@@ -19,7 +19,7 @@ import (
 	"github.com/rhomb/rhomb/net"
 	"github.com/rhomb/rhomb/net/classify"
 	"github.com/rhomb/rhomb/net/classify/endpoint"
-	"github.com/rhomb/rhomb/net/modelfile"
+	"github.com/rhomb/rhomb/optim/modelfile"
 )
 
 // TestEveryToolSameBits: for one float32 and one float64 model file and

@@ -9,8 +9,8 @@ import (
 	"github.com/rhomb/rhomb/internal/arith"
 	"github.com/rhomb/rhomb/internal/score"
 	"github.com/rhomb/rhomb/net"
-	"github.com/rhomb/rhomb/net/modelfile"
 	"github.com/rhomb/rhomb/optim"
+	"github.com/rhomb/rhomb/optim/modelfile"
 	"github.com/rhomb/rhomb/optim/recipe"
 )
 

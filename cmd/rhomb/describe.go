@@ -13,8 +13,8 @@ import (
 
 	"github.com/rhomb/rhomb/data/prep"
 	"github.com/rhomb/rhomb/net"
-	"github.com/rhomb/rhomb/net/modelfile"
 	"github.com/rhomb/rhomb/normalize"
+	"github.com/rhomb/rhomb/optim/modelfile"
 )
 
 const describeSummary = `Show what a model file holds: the network, its scales, the preprocessing

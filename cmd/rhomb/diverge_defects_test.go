@@ -14,7 +14,7 @@ import (
 	"strings"
 	"testing"
 
-	"github.com/rhomb/rhomb/net/modelfile"
+	"github.com/rhomb/rhomb/optim/modelfile"
 )
 
 func TestDivergenceKeepsTheRun(t *testing.T) {

@@ -20,7 +20,7 @@ import (
 	"testing"
 
 	"github.com/rhomb/rhomb/data"
-	"github.com/rhomb/rhomb/net/modelfile"
+	"github.com/rhomb/rhomb/optim/modelfile"
 )
 
 // at returns "path:line:column" for field number k (1-based) of the given

@@ -4,8 +4,8 @@ import (
 	"errors"
 	"fmt"
 
-	"github.com/rhomb/rhomb/net/modelfile"
-	"github.com/rhomb/rhomb/net/onnx"
+	"github.com/rhomb/rhomb/optim/modelfile"
+	"github.com/rhomb/rhomb/optim/modelfile/onnx"
 )
 
 const exportSummary = `Write a saved model as an ONNX file, for runtimes outside Go. The graph

@@ -6,13 +6,13 @@ import (
 	"path/filepath"
 	"testing"
 
-	"github.com/rhomb/rhomb/net/modelfile"
-	"github.com/rhomb/rhomb/net/onnx"
+	"github.com/rhomb/rhomb/optim/modelfile"
+	"github.com/rhomb/rhomb/optim/modelfile/onnx"
 )
 
 // TestExportONNX: rhomb export writes exactly what the library's exporter
 // makes of the saved model (the ONNX format itself is checked against
-// onnxruntime in net/onnx's tests and .ci/onnx-check), refuses a
+// onnxruntime in optim/modelfile/onnx's tests and .ci/onnx-check), refuses a
 // checkpoint, and names its flags when they are missing.
 func TestExportONNX(t *testing.T) {
 	dir := t.TempDir()

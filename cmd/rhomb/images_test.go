@@ -7,7 +7,7 @@ import (
 	"testing"
 
 	"github.com/rhomb/rhomb/internal/opendata"
-	"github.com/rhomb/rhomb/net/modelfile"
+	"github.com/rhomb/rhomb/optim/modelfile"
 )
 
 // TestImagesThroughThePipeline trains on the 10,000 Fashion-MNIST test

@@ -14,7 +14,7 @@ import (
 	"testing"
 
 	serving "github.com/rhomb/rhomb/net/classify"
-	"github.com/rhomb/rhomb/net/modelfile"
+	"github.com/rhomb/rhomb/optim/modelfile"
 )
 
 // cityCSV writes an invented two-class table with a city column, in

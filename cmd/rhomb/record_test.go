@@ -10,7 +10,7 @@ import (
 	"strings"
 	"testing"
 
-	"github.com/rhomb/rhomb/net/modelfile"
+	"github.com/rhomb/rhomb/optim/modelfile"
 )
 
 // TestRunRecordAndResume: the model and its checkpoint record the data

@@ -8,7 +8,7 @@ import (
 )
 
 // rhomb demo -report writes one self-contained page with every figure and
-// the cautions; the page's content is tested in net/gauge/report, here
+// the cautions; the page's content is tested in optim/gauge/report, here
 // only that the command wires it up. rhomb train -report on a CSV without
 // a test split puts the bound beside the validation error and says so.
 func TestReportFlag(t *testing.T) {

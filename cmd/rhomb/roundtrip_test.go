@@ -22,7 +22,7 @@ import (
 
 	"github.com/rhomb/rhomb/internal/opendata"
 	"github.com/rhomb/rhomb/net"
-	"github.com/rhomb/rhomb/net/modelfile"
+	"github.com/rhomb/rhomb/optim/modelfile"
 )
 
 const penguinRows = 344 // REFERENCES.md

@@ -11,7 +11,7 @@ import (
 	"github.com/rhomb/rhomb/data"
 	"github.com/rhomb/rhomb/data/prep"
 	"github.com/rhomb/rhomb/net/classify"
-	"github.com/rhomb/rhomb/net/modelfile"
+	"github.com/rhomb/rhomb/optim/modelfile"
 )
 
 // withModel loads the model at path in the element type it was saved in

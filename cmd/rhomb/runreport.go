@@ -13,15 +13,15 @@ import (
 	"github.com/rhomb/rhomb/loss"
 	"github.com/rhomb/rhomb/net"
 	"github.com/rhomb/rhomb/net/classify"
-	"github.com/rhomb/rhomb/net/gauge"
-	"github.com/rhomb/rhomb/net/gauge/plot"
-	htmlreport "github.com/rhomb/rhomb/net/gauge/report"
-	"github.com/rhomb/rhomb/net/modelfile"
 	"github.com/rhomb/rhomb/optim"
+	"github.com/rhomb/rhomb/optim/gauge"
+	"github.com/rhomb/rhomb/optim/gauge/plot"
+	htmlreport "github.com/rhomb/rhomb/optim/gauge/report"
+	"github.com/rhomb/rhomb/optim/modelfile"
 )
 
 // reportGamma is the margin γ of the report's bound, fixed here before any
-// data is seen, as the bound requires (see net/gauge).
+// data is seen, as the bound requires (see optim/gauge).
 const reportGamma = 0.1
 
 // runReport gathers what -report FILE needs while a run goes on: the

@@ -14,7 +14,7 @@ import (
 	"github.com/rhomb/rhomb/data/demo"
 	"github.com/rhomb/rhomb/internal/calib"
 	"github.com/rhomb/rhomb/net/classify"
-	"github.com/rhomb/rhomb/net/modelfile"
+	"github.com/rhomb/rhomb/optim/modelfile"
 )
 
 // reportCell returns the text of the element with the given id in a

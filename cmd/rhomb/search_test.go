@@ -6,7 +6,7 @@ import (
 	"testing"
 
 	"github.com/rhomb/rhomb/internal/opendata"
-	"github.com/rhomb/rhomb/net/modelfile"
+	"github.com/rhomb/rhomb/optim/modelfile"
 )
 
 // TestTrainSearch races four candidates on the Palmer penguins

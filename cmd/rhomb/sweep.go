@@ -20,10 +20,10 @@ import (
 	"github.com/rhomb/rhomb/data"
 	"github.com/rhomb/rhomb/internal/atomicfile"
 	"github.com/rhomb/rhomb/net"
-	"github.com/rhomb/rhomb/net/gauge"
-	"github.com/rhomb/rhomb/net/modelfile"
 	"github.com/rhomb/rhomb/normalize"
 	"github.com/rhomb/rhomb/optim"
+	"github.com/rhomb/rhomb/optim/gauge"
+	"github.com/rhomb/rhomb/optim/modelfile"
 	"github.com/rhomb/rhomb/optim/recipe"
 	"github.com/rhomb/rhomb/optim/sweep"
 )

@@ -15,7 +15,7 @@ import (
 	"testing"
 
 	"github.com/rhomb/rhomb/data/demo"
-	"github.com/rhomb/rhomb/net/modelfile"
+	"github.com/rhomb/rhomb/optim/modelfile"
 	"github.com/rhomb/rhomb/optim/sweep"
 )
 

@@ -19,9 +19,9 @@ import (
 	"github.com/rhomb/rhomb/internal/atomicfile"
 	"github.com/rhomb/rhomb/internal/score"
 	"github.com/rhomb/rhomb/net"
-	"github.com/rhomb/rhomb/net/modelfile"
 	"github.com/rhomb/rhomb/normalize"
 	"github.com/rhomb/rhomb/optim"
+	"github.com/rhomb/rhomb/optim/modelfile"
 	"github.com/rhomb/rhomb/optim/recipe"
 )
 

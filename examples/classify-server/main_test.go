@@ -36,7 +36,7 @@ import (
 	"github.com/rhomb/rhomb/net"
 	"github.com/rhomb/rhomb/net/classify"
 	"github.com/rhomb/rhomb/net/classify/endpoint"
-	"github.com/rhomb/rhomb/net/modelfile"
+	"github.com/rhomb/rhomb/optim/modelfile"
 )
 
 // row is one row of the invented pump data, as a client sends it.

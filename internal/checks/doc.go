@@ -2,7 +2,7 @@
 // datasets: each test walks the public path a user walks — read the data
 // (package data), fit the preprocessing on the training rows only
 // (data/prep), build and train a network (net, normalize, loss, optim),
-// save it to a model file and load it back (net/modelfile), then predict
+// save it to a model file and load it back (optim/modelfile), then predict
 // with the loaded model, its pipeline applied to the raw cell text as a
 // serving program would — and compares the accuracy with a published or
 // stated figure named beside the check.

@@ -9,9 +9,9 @@ import (
 	"github.com/rhomb/rhomb/data/prep"
 	"github.com/rhomb/rhomb/internal/opendata"
 	"github.com/rhomb/rhomb/loss"
-	"github.com/rhomb/rhomb/net/modelfile"
 	"github.com/rhomb/rhomb/normalize"
 	"github.com/rhomb/rhomb/optim"
+	"github.com/rhomb/rhomb/optim/modelfile"
 )
 
 // Fashion-MNIST (Expat licence; Debian dataset-fashion-mnist;

@@ -8,7 +8,7 @@ import (
 
 	"github.com/rhomb/rhomb/data"
 	"github.com/rhomb/rhomb/net"
-	"github.com/rhomb/rhomb/net/modelfile"
+	"github.com/rhomb/rhomb/optim/modelfile"
 )
 
 // The helpers below are the second half of every check: the trained model

@@ -10,9 +10,9 @@ import (
 	"github.com/rhomb/rhomb/data/prep"
 	"github.com/rhomb/rhomb/internal/opendata"
 	"github.com/rhomb/rhomb/loss"
-	"github.com/rhomb/rhomb/net/modelfile"
 	"github.com/rhomb/rhomb/normalize"
 	"github.com/rhomb/rhomb/optim"
+	"github.com/rhomb/rhomb/optim/modelfile"
 )
 
 // The Palmer penguins file (CC0; Debian r-cran-palmerpenguins,

@@ -3,7 +3,7 @@
 // length-prefixed JSON header, the table of little-endian tensors that
 // tiles the data region, and the SHA-256 checksum over everything.
 //
-// Two readers share it: net/modelfile, on the training side, and
+// Two readers share it: optim/modelfile, on the training side, and
 // net/classify, on the serving side. It lives here, once, so that the two
 // cannot drift apart on what a well-formed file is. What the header means
 // (the graph, the normalization, the pipeline, the checkpoint) is each

@@ -10,7 +10,7 @@ import (
 
 	"github.com/rhomb/rhomb/net"
 	"github.com/rhomb/rhomb/net/classify"
-	"github.com/rhomb/rhomb/net/modelfile"
+	"github.com/rhomb/rhomb/optim/modelfile"
 )
 
 // benchModel saves and loads a ReLU model of the given widths with random

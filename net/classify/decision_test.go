@@ -9,8 +9,8 @@ import (
 	"gonum.org/v1/gonum/floats"
 
 	"github.com/rhomb/rhomb/net/classify"
-	"github.com/rhomb/rhomb/net/modelfile"
-	"github.com/rhomb/rhomb/net/modelfile/schema"
+	"github.com/rhomb/rhomb/net/schema"
+	"github.com/rhomb/rhomb/optim/modelfile"
 )
 
 func withDecision(t *testing.T, m *modelfile.Model[float64], d *schema.Decision) (*classify.Model, error) {

@@ -3,7 +3,7 @@
 // HTTP server (package endpoint) and the edge program all read and compute
 // through it, so one file gives the same bits in every tool. It imports
 // only the standard library, data/prep, the model file's schema
-// (net/modelfile/schema, with internal/container) and the forward pass's
+// (net/schema, with internal/container) and the forward pass's
 // arithmetic (internal/arith), all themselves standard-library only —
 // never the training code or gonum, so a program that only predicts stays
 // small; a test checks the import graph.

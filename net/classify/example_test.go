@@ -11,9 +11,9 @@ import (
 	"github.com/rhomb/rhomb/loss"
 	"github.com/rhomb/rhomb/net"
 	"github.com/rhomb/rhomb/net/classify"
-	"github.com/rhomb/rhomb/net/modelfile"
 	"github.com/rhomb/rhomb/normalize"
 	"github.com/rhomb/rhomb/optim"
+	"github.com/rhomb/rhomb/optim/modelfile"
 )
 
 // exampleModel trains a small model on the invented demo data and saves

@@ -9,11 +9,11 @@ import (
 	"time"
 
 	"github.com/rhomb/rhomb/internal/arith"
-	"github.com/rhomb/rhomb/net/modelfile/schema"
+	"github.com/rhomb/rhomb/net/schema"
 )
 
 // Sentinel causes carried by FileError; errors.Is finds them. They are
-// the model file format's own (package net/modelfile/schema), the same
+// the model file format's own (package net/schema), the same
 // values the training library's reader reports.
 var (
 	ErrMagic     = schema.ErrMagic

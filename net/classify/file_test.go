@@ -13,7 +13,7 @@ import (
 
 	"github.com/rhomb/rhomb/net"
 	"github.com/rhomb/rhomb/net/classify"
-	"github.com/rhomb/rhomb/net/modelfile"
+	"github.com/rhomb/rhomb/optim/modelfile"
 )
 
 // validFile returns the bytes of a small saved model.

@@ -6,7 +6,7 @@ import (
 	"testing"
 
 	"github.com/rhomb/rhomb/net/classify"
-	"github.com/rhomb/rhomb/net/modelfile"
+	"github.com/rhomb/rhomb/optim/modelfile"
 )
 
 // convert32 exports m as a float32 model file, the way docs/model-file.md

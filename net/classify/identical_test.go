@@ -14,9 +14,9 @@ import (
 	"github.com/rhomb/rhomb/loss"
 	"github.com/rhomb/rhomb/net"
 	"github.com/rhomb/rhomb/net/classify"
-	"github.com/rhomb/rhomb/net/modelfile"
 	"github.com/rhomb/rhomb/normalize"
 	"github.com/rhomb/rhomb/optim"
+	"github.com/rhomb/rhomb/optim/modelfile"
 )
 
 // The reference for every test in this file is the training library's own

@@ -8,7 +8,7 @@ import (
 
 	"github.com/rhomb/rhomb/data/prep"
 	"github.com/rhomb/rhomb/internal/arith"
-	"github.com/rhomb/rhomb/net/modelfile/schema"
+	"github.com/rhomb/rhomb/net/schema"
 )
 
 // Model is a loaded classifier: its layers, its preprocessing and its

@@ -10,7 +10,7 @@ import (
 
 	"github.com/rhomb/rhomb/net"
 	"github.com/rhomb/rhomb/net/classify"
-	"github.com/rhomb/rhomb/net/modelfile"
+	"github.com/rhomb/rhomb/optim/modelfile"
 )
 
 // polyModel saves a one-node polynomial network (input → poly → readout)

@@ -201,13 +201,13 @@ func TestStdlibOnly(t *testing.T) {
 		if err != nil {
 			t.Fatalf("go list: %v\n%s", err, out)
 		}
-		// net/modelfile/schema (with internal/container) is the model
+		// net/schema (with internal/container) is the model
 		// file format and internal/arith the forward pass's arithmetic,
 		// both shared with the training library; they are standard-library
 		// only, which this list checks too, since -deps lists their
 		// imports.
 		allowed := map[string]bool{self: true, "github.com/rhomb/rhomb/data/prep": true, "github.com/rhomb/rhomb/internal/container": true,
-			"github.com/rhomb/rhomb/net/classify": true, "github.com/rhomb/rhomb/net/modelfile/schema": true, "github.com/rhomb/rhomb/internal/arith": true}
+			"github.com/rhomb/rhomb/net/classify": true, "github.com/rhomb/rhomb/net/schema": true, "github.com/rhomb/rhomb/internal/arith": true}
 		deps := strings.Fields(string(out))
 		for _, p := range deps {
 			if !allowed[p] {

@@ -12,8 +12,8 @@ import (
 	"github.com/rhomb/rhomb/internal/calib"
 	"github.com/rhomb/rhomb/net"
 	"github.com/rhomb/rhomb/net/classify"
-	"github.com/rhomb/rhomb/net/modelfile"
-	"github.com/rhomb/rhomb/net/modelfile/schema"
+	"github.com/rhomb/rhomb/net/schema"
+	"github.com/rhomb/rhomb/optim/modelfile"
 )
 
 // ThresholdRule says how a two-class model's decision threshold is set.

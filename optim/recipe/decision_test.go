@@ -8,7 +8,7 @@ import (
 
 	"github.com/rhomb/rhomb/data"
 	"github.com/rhomb/rhomb/net/classify"
-	"github.com/rhomb/rhomb/net/modelfile"
+	"github.com/rhomb/rhomb/optim/modelfile"
 	"github.com/rhomb/rhomb/optim/recipe"
 )
 

@@ -70,7 +70,7 @@ type stateJSON struct {
 }
 
 // MarshalJSON writes the state but Kept, which a model file stores as
-// tensors (net/modelfile, Model.Kept).
+// tensors (optim/modelfile, Model.Kept).
 func (s SessionState) MarshalJSON() ([]byte, error) {
 	return json.Marshal(stateJSON{nullable(s.Rate), nullable(s.Sharpness), nullable(s.LastLoss), s.Best, s.Since, s.Lowered, s.Rollbacks, s.Cap, s.History})
 }

@@ -8,9 +8,9 @@ import (
 	"github.com/rhomb/rhomb/data/demo"
 	"github.com/rhomb/rhomb/loss"
 	"github.com/rhomb/rhomb/net"
-	"github.com/rhomb/rhomb/net/gauge"
 	"github.com/rhomb/rhomb/normalize"
 	"github.com/rhomb/rhomb/optim"
+	"github.com/rhomb/rhomb/optim/gauge"
 	"github.com/rhomb/rhomb/optim/sweep"
 )
 

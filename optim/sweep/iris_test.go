@@ -9,9 +9,9 @@ import (
 	"github.com/rhomb/rhomb/internal/opendata"
 	"github.com/rhomb/rhomb/loss"
 	"github.com/rhomb/rhomb/net"
-	"github.com/rhomb/rhomb/net/gauge"
 	"github.com/rhomb/rhomb/normalize"
 	"github.com/rhomb/rhomb/optim"
+	"github.com/rhomb/rhomb/optim/gauge"
 )
 
 // irisSets returns Fisher's Iris data (vendored by internal/opendata from

@@ -6,8 +6,8 @@ import (
 
 	"github.com/rhomb/rhomb/data"
 	"github.com/rhomb/rhomb/net"
-	"github.com/rhomb/rhomb/net/gauge"
 	"github.com/rhomb/rhomb/optim"
+	"github.com/rhomb/rhomb/optim/gauge"
 )
 
 // Measure takes the measures a Result records from a trained model: the

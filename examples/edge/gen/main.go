@@ -22,7 +22,7 @@ import (
 	"github.com/rhomb/rhomb/data/demo"
 	"github.com/rhomb/rhomb/data/prep"
 	"github.com/rhomb/rhomb/net/classify"
-	"github.com/rhomb/rhomb/net/modelfile"
+	"github.com/rhomb/rhomb/optim/modelfile"
 	"github.com/rhomb/rhomb/optim/recipe"
 )
 

@@ -24,9 +24,9 @@ import (
 	"github.com/rhomb/rhomb/net"
 	"github.com/rhomb/rhomb/net/classify"
 	"github.com/rhomb/rhomb/net/classify/endpoint"
-	"github.com/rhomb/rhomb/net/modelfile"
 	"github.com/rhomb/rhomb/normalize"
 	"github.com/rhomb/rhomb/optim"
+	"github.com/rhomb/rhomb/optim/modelfile"
 )
 
 // The models are trained on the invented demo data; the tests check

@@ -14,7 +14,7 @@ import (
 	"github.com/rhomb/rhomb/net"
 	"github.com/rhomb/rhomb/net/classify"
 	"github.com/rhomb/rhomb/net/classify/endpoint"
-	"github.com/rhomb/rhomb/net/modelfile"
+	"github.com/rhomb/rhomb/optim/modelfile"
 )
 
 // TestUnknownFields: by default a row field that is none of the model's
