@@ -8,6 +8,7 @@ import (
 	"errors"
 	"flag"
 	"fmt"
+	"github.com/rhomb/rhomb/optim/gauge/plot"
 	"io"
 	"os"
 	"os/signal"
@@ -310,7 +311,7 @@ func sweepReport(e *env, ranked []sweep.Result, axes sweep.Axes, top int, heatma
 	}
 	fmt.Fprintln(e.stdout)
 	if heatmap != "" {
-		if err := sweep.SaveHeatMap(heatmap, axes, ranked, sweep.HeatMapOptions{}); err != nil {
+		if err := plot.SaveHeatMap(heatmap, axes, ranked, plot.HeatMapOptions{}); err != nil {
 			return err
 		}
 		fmt.Fprintf(e.stdout, "heat map: %s\n", heatmap)

@@ -69,9 +69,9 @@
 //
 // # Summaries
 //
-// WriteTable prints a ranking as a text table; HeatMap and SaveHeatMap
-// draw validation accuracy (or another measure) over ρ0 × λ, averaged over
-// the other axes (Cells), with gonum.org/v1/plot.
+// WriteTable prints a ranking as a text table; the plotting package
+// (optim/gauge/plot: HeatMap, SaveHeatMap) draws the validation score (or
+// another measure) over ρ0 × λ, averaged over the other axes.
 //
 // # Cautions
 //

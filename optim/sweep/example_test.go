@@ -68,13 +68,10 @@ func Example() {
 	best := ranked[0]
 	fmt.Printf("%d runs; best: ρ0 = %g, λ = %g, seed %d\n", len(ranked), best.Rho0, best.WeightDecay, best.Seed)
 	fmt.Printf("validation accuracy %.3f, min training margin %.3f\n", best.ValAccuracy, best.MarginMin)
-	cells := sweep.Cells(gr.Axes(), results, nil)
-	fmt.Printf("mean validation accuracy at ρ0 = 0.1: λ = 1e-4 %.3f, λ = 1e-2 %.3f\n", cells[0][0], cells[0][1])
 	sweep.WriteTable(os.Stdout, ranked, 2)
 	// Output:
 	// 8 runs; best: ρ0 = 1, λ = 0.0001, seed 1
 	// validation accuracy 0.997, min training margin -0.212
-	// mean validation accuracy at ρ0 = 0.1: λ = 1e-4 0.932, λ = 1e-2 0.928
 	//   rank  point  ρ0       λ     η  T  seed  validation   train  min margin  mean margin   bound      ρ status
 	//      1      4   1  0.0001  0.05  0     1      0.9967  0.9933     -0.2122       0.4769  107.42   1.65 finished
 	//      2      6   1    0.01  0.05  0     1      0.9967  0.9933     -0.2175        0.487  107.42  1.579 finished
