@@ -5,6 +5,7 @@ import (
 	"context"
 	"encoding/xml"
 	"errors"
+	"github.com/rhomb/rhomb/internal/demorun"
 	"image"
 	"image/color"
 	"image/png"
@@ -30,7 +31,7 @@ var (
 // properties that hold for any run, which is all these tests check).
 func demo(t *testing.T) *report.Run {
 	t.Helper()
-	demoOnce.Do(func() { demoRun, demoErr = report.Demo(context.Background(), report.DemoOptions{Epochs: 8}) })
+	demoOnce.Do(func() { demoRun, demoErr = demorun.Run(context.Background(), demorun.Options{Epochs: 8}) })
 	if demoErr != nil {
 		t.Fatal(demoErr)
 	}

@@ -23,7 +23,8 @@
 //		Heldout: "validation", HeldoutLoss: track.Loss, Bound: bound,
 //		Confusion: []report.Confusion{report.ConfusionOf(model, "test", test)}, ...})
 //
-// Demo does all of this on the embedded demo data in one call.
+// rhomb train -report FILE (and rhomb demo -report) does all of this for a
+// run of the training procedure.
 //
 // # The page
 //

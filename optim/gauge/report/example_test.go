@@ -3,15 +3,18 @@ package report_test
 import (
 	"context"
 	"fmt"
+	"github.com/rhomb/rhomb/internal/demorun"
 	"io"
 
 	"github.com/rhomb/rhomb/optim/gauge/report"
 )
 
-// Train on the demo data and write the run's report. A real program
-// writes it to a file with report.WriteFile("run.html", r).
+// Write a run's report. The Run here is the fixed demo run the package's
+// tests use (built as the package documentation shows: a recorder on the
+// trainer's hooks, the held-out loss, the bound, the confusion matrices);
+// a real program writes it to a file with report.WriteFile("run.html", r).
 func ExampleWrite() {
-	r, err := report.Demo(context.Background(), report.DemoOptions{Epochs: 5})
+	r, err := demorun.Run(context.Background(), demorun.Options{Epochs: 5})
 	if err != nil {
 		fmt.Println(err)
 		return

@@ -4,6 +4,7 @@ import (
 	"bytes"
 	"context"
 	"flag"
+	"github.com/rhomb/rhomb/internal/demorun"
 	"image/png"
 	"math"
 	"os"
@@ -11,7 +12,6 @@ import (
 	"testing"
 
 	"github.com/rhomb/rhomb/optim/gauge/plot"
-	"github.com/rhomb/rhomb/optim/gauge/report"
 )
 
 var update = flag.Bool("update", false, "rewrite the README's figures in docs/figures from a demo run")
@@ -33,7 +33,7 @@ var figuresDir = filepath.Join("..", "..", "..", "docs", "figures")
 // (assembly or pure-Go kernels), and the figures need only show a run.
 func TestREADMEFigures(t *testing.T) {
 	if *update {
-		r, err := report.Demo(context.Background(), report.DemoOptions{})
+		r, err := demorun.Run(context.Background(), demorun.Options{})
 		if err != nil {
 			t.Fatal(err)
 		}

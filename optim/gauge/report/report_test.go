@@ -7,6 +7,7 @@ import (
 	"encoding/csv"
 	"encoding/xml"
 	"errors"
+	"github.com/rhomb/rhomb/internal/demorun"
 	"image/png"
 	"io"
 	"io/fs"
@@ -37,7 +38,7 @@ var (
 func demoReport(t *testing.T) (*report.Run, []byte) {
 	t.Helper()
 	demoOnce.Do(func() {
-		demoRun, demoErr = report.Demo(context.Background(), report.DemoOptions{Epochs: 12})
+		demoRun, demoErr = demorun.Run(context.Background(), demorun.Options{Epochs: 12})
 		if demoErr != nil {
 			return
 		}

@@ -1,4 +1,7 @@
-package report
+// Package demorun trains the fixed demo run the run report's tests and
+// the README's report figures are made from. It is not API: the product's
+// path to a report is rhomb train -report (or rhomb demo -report).
+package demorun
 
 import (
 	"context"
@@ -10,11 +13,12 @@ import (
 	"github.com/rhomb/rhomb/normalize"
 	"github.com/rhomb/rhomb/optim"
 	"github.com/rhomb/rhomb/optim/gauge"
+	"github.com/rhomb/rhomb/optim/gauge/report"
 )
 
-// DemoOptions sets the demo run. The zero value is the run the README's
+// Options sets the demo run. The zero value is the run the README's
 // figures come from.
-type DemoOptions struct {
+type Options struct {
 	Epochs int    // zero: 30
 	Seed   uint64 // zero: 1
 	// TrainRows of the 1,200 embedded rows train, the rest test; zero:
@@ -22,12 +26,11 @@ type DemoOptions struct {
 	TrainRows int
 }
 
-// Demo trains a network on the embedded demo data (data/demo.Pumps:
+// Run trains a network on the embedded demo data (data/demo.Pumps:
 // invented pump-condition readings, with sensor dropouts imputed) with a
 // gauge.Recorder measuring everything at every epoch, and returns the Run
-// a report shows. It is the library's one-call path from nothing to a
-// report, and what the tests and the README figures are made from; a run
-// of 30 epochs takes a few seconds.
+// a report shows: what the report's tests and the README figures are made
+// from; a run of 30 epochs takes a few seconds.
 //
 // The network is two hidden ReLU layers of 32 behind a constant feature,
 // one global scale started at ρ0 = 0.1, trained with the square loss,
@@ -36,7 +39,7 @@ type DemoOptions struct {
 // of the training procedure (optim/recipe, which rhomb train and rhomb
 // demo -report run), so that the README's figures show one global scale at
 // a constant rate and stay the same when the procedure's defaults change.
-func Demo(ctx context.Context, o DemoOptions) (*Run, error) {
+func Run(ctx context.Context, o Options) (*report.Run, error) {
 	if o.Epochs == 0 {
 		o.Epochs = 30
 	}
@@ -79,7 +82,7 @@ func Demo(ctx context.Context, o DemoOptions) (*Run, error) {
 		return nil, err
 	}
 	lf := loss.Square[float64]{}
-	track := TrackLoss[float64](model, lf, test)
+	track := report.TrackLoss[float64](model, lf, test)
 	tr, err := optim.NewTrainer[float64](model, lf, train, optim.Settings{
 		LearningRate: lr, BatchSize: batch, WeightDecay: decay, Epochs: o.Epochs, Seed: o.Seed,
 		Hooks: optim.Join(rec.Hooks(), track.Hooks()),
@@ -95,26 +98,26 @@ func Demo(ctx context.Context, o DemoOptions) (*Run, error) {
 	if err != nil {
 		return nil, err
 	}
-	return &Run{
+	return &report.Run{
 		Title:  "rhomb demo run: invented pump-condition readings",
 		Status: res.Status.String(), Epochs: res.Epochs, Steps: res.Steps,
-		Network: Describe(n),
-		Settings: []Setting{
-			{"loss", lf.Name()},
-			{"normalization", "one global scale ρ, directions on the unit sphere (multiplier)"},
-			{"initial scale ρ0", fmt.Sprint(rho0)},
-			{"learning rate", fmt.Sprint(lr)},
-			{"minibatch", fmt.Sprintf("%d rows, shuffled epochs", batch)},
-			{"weight decay λ", fmt.Sprint(decay)},
-			{"temperature", "0 (no Langevin noise)"},
-			{"epochs", fmt.Sprint(o.Epochs)},
-			{"seed", fmt.Sprint(o.Seed)},
-			{"bound", fmt.Sprintf("γ = %v fixed in advance, δ = %v", bound.Gamma, bound.Delta)},
+		Network: report.Describe(n),
+		Settings: []report.Setting{
+			{Name: "loss", Value: lf.Name()},
+			{Name: "normalization", Value: "one global scale ρ, directions on the unit sphere (multiplier)"},
+			{Name: "initial scale ρ0", Value: fmt.Sprint(rho0)},
+			{Name: "learning rate", Value: fmt.Sprint(lr)},
+			{Name: "minibatch", Value: fmt.Sprintf("%d rows, shuffled epochs", batch)},
+			{Name: "weight decay λ", Value: fmt.Sprint(decay)},
+			{Name: "temperature", Value: "0 (no Langevin noise)"},
+			{Name: "epochs", Value: fmt.Sprint(o.Epochs)},
+			{Name: "seed", Value: fmt.Sprint(o.Seed)},
+			{Name: "bound", Value: fmt.Sprintf("γ = %v fixed in advance, δ = %v", bound.Gamma, bound.Delta)},
 		},
-		Data: DescribeData(split.Table, "imputed: the training rows' mean (numeric) or most frequent value (categorical)",
-			Named[float64]{"training", train}, Named[float64]{"test", test}),
+		Data: report.DescribeData(split.Table, "imputed: the training rows' mean (numeric) or most frequent value (categorical)",
+			report.Named[float64]{Name: "training", Set: train}, report.Named[float64]{Name: "test", Set: test}),
 		History: rec.History(), HeldoutLoss: track.Loss, Start: &start, Bound: final,
-		Confusion: []Confusion{ConfusionOf[float64](model, "training", train), ConfusionOf[float64](model, "test", test)},
+		Confusion: []report.Confusion{report.ConfusionOf[float64](model, "training", train), report.ConfusionOf[float64](model, "test", test)},
 		Notes:     []string{"The demo data are invented: a model trained on them says nothing about real machinery."},
 	}, nil
 }
