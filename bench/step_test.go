@@ -10,7 +10,6 @@ import (
 	"gonum.org/v1/gonum/mat"
 
 	"github.com/rhomb/rhomb/data"
-	"github.com/rhomb/rhomb/internal/kern"
 	"github.com/rhomb/rhomb/loss"
 	"github.com/rhomb/rhomb/net"
 	"github.com/rhomb/rhomb/optim"
@@ -74,6 +73,7 @@ type step[T net.Float] struct {
 	n       *net.Network[T]
 	x, y, g []T
 	a       arch
+	exact   optim.ExactStep[T]
 }
 
 func newStep[T net.Float](tb testing.TB, a arch, rng *rand.Rand) *step[T] {
@@ -89,12 +89,12 @@ func (s *step[T]) grads() float64 {
 	return l
 }
 
-// update is the trainer's noiseless update without decay (kern.Update,
-// which optim.Trainer calls), so that rhomb's step times rhomb's update:
-// spread over the cores for the large weight matrices.
+// update is the trainer's noiseless update without decay
+// (optim.ExactStep, which optim.Trainer runs), so that rhomb's step times
+// rhomb's update: spread over the cores for the large weight matrices.
 func (s *step[T]) update() {
 	for _, p := range s.n.Params() {
-		kern.Update(p.Value, p.Grad, nil, lr, 0, 0, false)
+		s.exact.Apply(p.Value, p.Grad, nil, lr, 0, 0, false)
 	}
 }
 

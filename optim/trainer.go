@@ -121,6 +121,9 @@ func (e *NonFiniteError) Error() string {
 // of the run — step and epoch counters, batch order, momentum, random
 // streams — so that Run can be called again to continue.
 type Trainer[T net.Float] struct {
+	// exact runs the noise-free steps (kept here so that handing them to
+	// the workers allocates nothing).
+	exact  ExactStep[T]
 	model  Model[T]
 	loss   loss.Func[T]
 	set    *data.Set[T]
@@ -371,10 +374,11 @@ func (t *Trainer[T]) update(lr float64) error {
 		j := -1
 		switch {
 		case sigma == 0:
-			// Without noise the elements are independent: kern.Update
-			// spreads a large parameter over the cores, with the same
-			// expressions as the loops below, so the same bits.
-			j = kern.Update(p.Value, p.Grad, v, lr, d, mu, t.s.Nesterov)
+			// Without noise the elements are independent: the workers of
+			// internal/kern share a large parameter in chunks, each
+			// running stepExact, so the bits are those of one serial
+			// loop.
+			j = t.exact.Apply(p.Value, p.Grad, v, lr, d, mu, t.s.Nesterov)
 		case v == nil:
 			j = stepNoisy(p.Value, p.Grad, lr, d, sigma, t.noiseRNG)
 		default:
@@ -404,11 +408,103 @@ func (t *Trainer[T]) update(lr float64) error {
 //
 // in that order, so every variant gives the bits the general one would;
 // they exist so that the common cases run without per-element branches.
-// The steps without noise are kern.Update (the same expressions, spread
-// over the cores for large parameters); the noisy ones stay serial here,
+// The steps without noise (stepExact) run on the workers of internal/kern
+// for large parameters, in independent chunks; the noisy ones stay serial,
 // since the noise is one sequential stream.
 // Each returns the index of the first updated value that is not finite,
 // or −1.
+
+// ExactStep is the trainer's noise-free update of one parameter, for a
+// program that runs its own loop (a benchmark, say): in float64 per
+// element,
+//
+//	g = grad + decay2·θ;  with momentum: v = μv + g, g = v (heavy ball) or g + μv (Nesterov)
+//	θ = θ − lr·g
+//
+// rounded to T. Large parameters are split into chunks that the workers of
+// internal/kern share; chunks are independent, so the bits are those of
+// one serial loop for any GOMAXPROCS. Keep one ExactStep and reuse it:
+// Apply then allocates nothing.
+type ExactStep[T net.Float] struct{ u exactUpdate[T] }
+
+// Apply updates val (and vel, when not nil) in place and returns the
+// smallest index whose new value is not finite, or −1; every element is
+// updated either way.
+func (s *ExactStep[T]) Apply(val, grad, vel []T, lr, decay2, mu float64, nesterov bool) int {
+	s.u = exactUpdate[T]{val: val, grad: grad, vel: vel, lr: lr, d: decay2, mu: mu, nesterov: nesterov}
+	j := kern.ParallelRange(len(val), &s.u)
+	s.u = exactUpdate[T]{}
+	return j
+}
+
+// exactUpdate is a noise-free step of one parameter, for
+// kern.ParallelRange.
+type exactUpdate[T net.Float] struct {
+	val, grad, vel []T
+	lr, d, mu      float64
+	nesterov       bool
+}
+
+func (u *exactUpdate[T]) Range(lo, hi int) int {
+	var vel []T
+	if u.vel != nil {
+		vel = u.vel[lo:hi]
+	}
+	if b := stepExact(u.val[lo:hi], u.grad[lo:hi], vel, u.lr, u.d, u.mu, u.nesterov); b >= 0 {
+		return lo + b
+	}
+	return -1
+}
+
+// stepExact is the noise-free step, one variant per case so that the
+// common ones run without per-element branches.
+func stepExact[T net.Float](val, grad, vel []T, lr, d, mu float64, nesterov bool) int {
+	bad := -1
+	grad = grad[:len(val)]
+	switch {
+	case vel == nil:
+		for j, gj := range grad {
+			theta := float64(val[j])
+			theta -= lr * (float64(gj) + d*theta)
+			nv := T(theta)
+			if notFinite(nv) && bad < 0 {
+				bad = j
+			}
+			val[j] = nv
+		}
+	case nesterov:
+		vel = vel[:len(val)]
+		for j, gj := range grad {
+			theta := float64(val[j])
+			g := float64(gj) + d*theta
+			vj := mu*float64(vel[j]) + g
+			vel[j] = T(vj)
+			g += mu * vj
+			theta -= lr * g
+			nv := T(theta)
+			if notFinite(nv) && bad < 0 {
+				bad = j
+			}
+			val[j] = nv
+		}
+	default:
+		vel = vel[:len(val)]
+		for j, gj := range grad {
+			theta := float64(val[j])
+			g := float64(gj) + d*theta
+			vj := mu*float64(vel[j]) + g
+			vel[j] = T(vj)
+			g = vj
+			theta -= lr * g
+			nv := T(theta)
+			if notFinite(nv) && bad < 0 {
+				bad = j
+			}
+			val[j] = nv
+		}
+	}
+	return bad
+}
 
 func stepNoisy[T net.Float](val, grad []T, lr, d, sigma float64, rng *rand.Rand) int {
 	bad := -1

@@ -250,7 +250,8 @@ type job[T Float] struct {
 	next        atomic.Int64
 	busy        atomic.Int32 // helpers still running
 	wg          sync.WaitGroup
-	upd         updateJob[T] // set (upd.on) while the pool runs an Update instead
+	loop        Ranger // set while the pool runs a ParallelRange instead
+	loopN       int
 	bad         atomic.Int64 // an Update's smallest non-finite index so far
 }
 
@@ -391,8 +392,8 @@ func (p *pool[T]) work(s *scratch[T]) {
 		if _, ok := <-p.wake; !ok {
 			return
 		}
-		if p.j.upd.on {
-			p.j.runUpdate()
+		if p.j.loop != nil {
+			p.j.runLoop()
 		} else {
 			p.j.run(s)
 		}

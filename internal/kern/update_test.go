@@ -8,12 +8,12 @@ import (
 	"testing"
 )
 
-// refUpdate is the reference for Update: the general loop of one SGD step
-// with decay and (optional) momentum, one element at a time, in float64,
-// with the expressions of the loop Update replaces (optim's stepPlain and
-// stepMomentum): θ −= lr·(g + d·θ) without momentum; v = μv + g, g = v or
-// g + μv, θ −= lr·g with it. Elements are independent, so the reference
-// is also what any split of the range must give, bit for bit.
+// refUpdate is the elementwise work the tests spread with ParallelRange:
+// the general loop of one SGD step with decay and (optional) momentum, one
+// element at a time, in float64 (optim's rule: θ −= lr·(g + d·θ) without
+// momentum; v = μv + g, g = v or g + μv, θ −= lr·g with it). Elements are
+// independent, so the whole range in one call is also what any split of
+// it must give, bit for bit.
 func refUpdate[T Float](val, grad, vel []T, lr, d, mu float64, nesterov bool) int {
 	bad := -1
 	for j := range val {
@@ -61,6 +61,29 @@ func checkGuards[T Float](t *testing.T, label, name string, whole []T) {
 			}
 		}
 	}
+}
+
+// updRanger runs refUpdate on chunks of its slices, for ParallelRange.
+type updRanger[T Float] struct {
+	val, grad, vel []T
+	lr, d, mu      float64
+	nesterov       bool
+}
+
+func (u *updRanger[T]) Range(lo, hi int) int {
+	var vel []T
+	if u.vel != nil {
+		vel = u.vel[lo:hi]
+	}
+	if b := refUpdate(u.val[lo:hi], u.grad[lo:hi], vel, u.lr, u.d, u.mu, u.nesterov); b >= 0 {
+		return lo + b
+	}
+	return -1
+}
+
+// Update is the tests' shorthand: refUpdate spread by ParallelRange.
+func Update[T Float](val, grad, vel []T, lr, d, mu float64, nesterov bool) int {
+	return ParallelRange(len(val), &updRanger[T]{val: val, grad: grad, vel: vel, lr: lr, d: d, mu: mu, nesterov: nesterov})
 }
 
 // updateLengths: every length up to 70 (the serial loop's edges), and
@@ -134,7 +157,8 @@ func runUpdateCase[T Float](t *testing.T, rng *rand.Rand, n int, c updateCase, p
 	}
 }
 
-// TestUpdate checks Update bit for bit against the serial reference, at
+// TestUpdate checks ParallelRange (through Update) bit for bit against
+// the serial reference, at
 // GOMAXPROCS 1 and 2, for every variant, with guards around every slice,
 // and the bad-index rule (the smallest non-finite index, as the serial
 // loop finds) with non-finite values planted at the start, the end, the
@@ -167,13 +191,13 @@ func testUpdate[T Float](t *testing.T) {
 				}
 			}
 		}
-		if procs == 2 && started[T]() < 1 {
+		if procs == 2 && started[float64]() < 1 { // ParallelRange runs on the float64 pool
 			t.Fatal("GOMAXPROCS=2: no worker started; the parallel path was not taken")
 		}
 	}
 }
 
-// TestUpdateAllocs checks that Update allocates nothing, on the serial
+// TestUpdateAllocs checks that ParallelRange allocates nothing, on the serial
 // path (testing.AllocsPerRun runs at GOMAXPROCS 1) and on the parallel
 // one (counted from runtime.MemStats at GOMAXPROCS 2, as testAllocs does).
 func TestUpdateAllocs(t *testing.T) {
@@ -188,11 +212,16 @@ func testUpdateAllocs[T Float](t *testing.T) {
 	for i := range grad {
 		grad[i] = T(i%7) / 8
 	}
+	// One ranger each, made once, as optim's trainer keeps its own: a
+	// pointer in an interface costs nothing per call.
+	plain := &updRanger[T]{val: val, grad: grad, lr: 1e-3}
+	moment := &updRanger[T]{val: val, grad: grad, vel: vel, lr: 1e-3, d: 1e-4, mu: 0.9, nesterov: true}
+	short := &updRanger[T]{val: val[:100], grad: grad, vel: vel, lr: 1e-3, d: 1e-4, mu: 0.9}
 	call := func() {
-		Update(val, grad, nil, 1e-3, 0, 0, false)
-		Update(val, grad, vel, 1e-3, 1e-4, 0.9, true)
+		ParallelRange(n, plain)
+		ParallelRange(n, moment)
 	}
-	small := func() { Update(val[:100], grad, vel, 1e-3, 1e-4, 0.9, false) }
+	small := func() { ParallelRange(100, short) }
 	if got := testing.AllocsPerRun(10, small); got != 0 {
 		t.Errorf("small update: %v allocations per call, want 0", got)
 	}
@@ -208,7 +237,7 @@ func testUpdateAllocs[T Float](t *testing.T) {
 		call()
 	}
 	runtime.ReadMemStats(&after)
-	if started[T]() < 1 {
+	if started[float64]() < 1 { // ParallelRange runs on the float64 pool
 		t.Fatal("no worker started; the parallel path was not taken")
 	}
 	if got := (after.Mallocs - before.Mallocs) / runs; got != 0 {
@@ -216,23 +245,21 @@ func testUpdateAllocs[T Float](t *testing.T) {
 	}
 }
 
-// One plain step and one Nesterov step on two weights; the second gradient
-// is NaN in the last call, and Update reports where (values by hand:
-// 1 − 0.1·0.5 = 0.95, 2 − 0.1·(−1) = 2.1; with velocity 0 and μ = 0.9,
-// v = g and θ −= 0.1·(g + 0.9g)).
-func ExampleUpdate() {
-	val, grad := []float64{1, 2}, []float64{0.5, -1}
-	bad := Update(val, grad, nil, 0.1, 0, 0, false)
-	fmt.Printf("%.4g %d\n", val, bad)
+// ParallelRange on a small range runs one call; the index it returns is
+// the one the work reported (here, the first negative value).
+func ExampleParallelRange() {
+	v := []float64{3, 1, -4, 1, -5}
+	fmt.Println(ParallelRange(len(v), firstNegative(v)))
+	// Output: 2
+}
 
-	val, vel := []float64{1, 2}, []float64{0, 0}
-	bad = Update(val, grad, vel, 0.1, 0, 0.9, true)
-	fmt.Printf("%.4g %.4g %d\n", val, vel, bad)
+type firstNegative []float64
 
-	grad[1] = math.NaN()
-	fmt.Println(Update(val, grad, nil, 0.1, 0, 0, false))
-	// Output:
-	// [0.95 2.1] -1
-	// [0.905 2.19] [0.5 -1] -1
-	// 1
+func (f firstNegative) Range(lo, hi int) int {
+	for i := lo; i < hi; i++ {
+		if f[i] < 0 {
+			return i
+		}
+	}
+	return -1
 }
