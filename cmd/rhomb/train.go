@@ -264,69 +264,220 @@ func smallerStep(c *config, rate float64) string {
 	return fmt.Sprintf("-step-factor %.3g", c.StepFactor/4)
 }
 
-func train[T net.Float](e *env, c *config, o *runOptions) error {
+// startRun checks the run's output paths, reads and prepares the data,
+// and records the run (data by content, command lines, build); a resumed
+// run must read the same data.
+func startRun[T net.Float](e *env, c *config, o *runOptions) (*prepared[T], error) {
 	// Every file the run writes is checked before it starts, so that a
 	// wrong path fails now and not after the whole run.
 	outputs := [][2]string{{"-o", o.out}, {"-checkpoint", o.checkpoint}, {"-metrics", o.metrics}, {"-report", o.report}}
 	for _, f := range outputs {
 		if f[1] != "" {
 			if err := writable("train", f[0], f[1]); err != nil {
-				return err
+				return nil, err
 			}
 		}
 	}
 	if c.Search > 0 {
 		if err := searchable(c, o); err != nil {
-			return err
+			return nil, err
 		}
 	}
 	p, err := prepare[T](c, e.stdin)
 	if err != nil {
-		return err
+		return nil, err
 	}
 	// The run record: the data by content (a resumed run must read the
 	// same), every command line that trained the model, and the build.
 	rec := newRunRecord(o.args)
 	if o.resume != "" && c.Run != nil {
 		if err := sameData(o.resume, c.Run.Data, p.sources); err != nil {
-			return err
+			return nil, err
 		}
 		rec.Commands = append(c.Run.Commands, rec.Commands...)
 	}
 	rec.Data = p.sources
 	c.Run = rec
 	if m, _ := recipe.ParseMetric(c.Metric); m == recipe.AUC && p.train.Outputs != 1 {
-		return usageError{fmt.Errorf("train: -metric auc ranks the scores of a two-class model, and the data has %d classes: use -metric balanced or -metric macro-f1", len(p.classes))}
+		return nil, usageError{fmt.Errorf("train: -metric auc ranks the scores of a two-class model, and the data has %d classes: use -metric balanced or -metric macro-f1", len(p.classes))}
+	}
+	return p, nil
+}
+
+// networkFor builds the network the settings describe (and its
+// normalization), or loads the one of the checkpoint being resumed.
+func networkFor[T net.Float](c *config, o *runOptions, p *prepared[T]) (n *net.Network[T], wrapped *normalize.Net[T], resumed *modelfile.Model[T], err error) {
+	if o.resume != "" {
+		if resumed, err = modelfile.Load[T](o.resume); err != nil {
+			return nil, nil, nil, modelError{err}
+		}
+		n, wrapped = resumed.Network, resumed.Normalized
+		if n.In() != p.train.Features || n.Out() != p.train.Outputs {
+			return nil, nil, nil, modelError{fmt.Errorf("%s: the network takes %d features and gives %d outputs, the data has %d and %d", o.resume, n.In(), n.Out(), p.train.Features, p.train.Outputs)}
+		}
+		return n, wrapped, resumed, nil
+	}
+	if n, err = buildNetwork[T](c, p.train.Features, p.train.Outputs); err != nil {
+		return nil, nil, nil, err
+	}
+	no, err := c.normOptions()
+	if err != nil {
+		return nil, nil, nil, err
+	}
+	if no != nil {
+		if wrapped, err = normalize.Wrap(n, *no); err != nil {
+			return nil, nil, nil, usageError{fmt.Errorf("train: %w", err)}
+		}
+	}
+	return n, wrapped, nil, nil
+}
+
+// restoreSession puts a resumed run's state back into sess: the
+// procedure's record and the trainer's, with a new step size when -lr or
+// -step-factor was given again.
+func restoreSession[T net.Float](sess *recipe.Session[T], resumed *modelfile.Model[T], c *config, o *runOptions) error {
+	var err error
+	if resumed.Session == nil {
+		// A checkpoint written before train kept its best epoch: the
+		// trainer's state is all there is, and the run goes on from it.
+		err = sess.Trainer().Restore(*resumed.Checkpoint)
+	} else {
+		var ss recipe.SessionState
+		if err := json.Unmarshal(resumed.Session, &ss); err != nil {
+			return modelError{fmt.Errorf("%s: session record: %w", o.resume, err)}
+		}
+		ss.Kept = resumed.Kept
+		if o.newLR > 0 || o.rescale > 0 {
+			// A new step size: the rate, and the cap a rollback set,
+			// follow it, and the run may again lower it on its own.
+			c.StepChanges[len(c.StepChanges)-1].Was = ss.Rate
+			if o.newLR > 0 {
+				ss.Rate, ss.Cap = o.newLR, 0
+			} else {
+				ss.Rate, ss.Cap = ss.Rate*o.rescale, ss.Cap*o.rescale
+			}
+			ss.Rollbacks = 0
+		}
+		err = sess.Restore(ss, *resumed.Checkpoint)
+	}
+	if err != nil {
+		return modelError{fmt.Errorf("%s: %w", o.resume, err)}
+	}
+	return nil
+}
+
+// runEnd is what a finished run reports and saves.
+type runEnd[T net.Float] struct {
+	w            io.Writer
+	c            *config
+	o            *runOptions
+	p            *prepared[T]
+	model        optim.Model[T]
+	n            *net.Network[T]
+	res          optim.Result
+	out          recipe.Outcome
+	saved        *modelfile.Model[T] // the model as it is saved, its decision fitted here
+	rr           *runReport[T]
+	divergedNote string
+}
+
+// finish fits how the saved model answers, measures it on every split,
+// checks it for degenerate answers, saves it and prints the summary (and
+// writes the report, when asked).
+func (r *runEnd[T]) finish() error {
+	metrics := map[string]any{"epochs": r.res.Epochs, "steps": r.res.Steps, "status": r.res.Status.String(), "rho": r.n.Rho(),
+		"best_epoch": r.out.Best.Epoch, "ranked_by": r.out.Metric.String(), "stopped": r.out.Stop.String(), "learning_rate": r.out.Rate}
+	if !math.IsNaN(r.res.Loss) {
+		metrics["loss"] = r.res.Loss
+	}
+	if !math.IsNaN(r.out.Sharpness) {
+		metrics["sharpness"] = r.out.Sharpness
+	}
+	decision, err := fitDecision(r.c, r.saved, r.p.val)
+	if err != nil {
+		return err
+	}
+	report := func(name string, set *data.Set[T]) *score.Confusion {
+		if set == nil {
+			return nil
+		}
+		conf := decidedConfusion(r.model, r.saved, set, r.p.classes)
+		metrics[name+"_accuracy"] = conf.Accuracy()
+		metrics[name+"_rows"] = set.Rows
+		return conf
+	}
+	report("train", r.p.train)
+	val := report("validation", r.p.val)
+	test := report("test", r.p.test)
+	var health recipe.Health
+	if r.p.val != nil {
+		health = recipe.Check(r.model, r.p.val, r.p.classes)
+		if !health.OK() {
+			metrics["health"] = strings.Join(health.Problems, "; ")
+		}
+	}
+	if r.c.Strict && !health.OK() {
+		return fmt.Errorf("the trained model is degenerate, so nothing was saved (-strict): %s", cliHealth(health))
+	}
+	fmt.Fprintf(r.w, "trained %d epochs (%d steps, %s)", r.res.Epochs, r.res.Steps, r.out.Stop)
+	if r.o.out != "" {
+		m := r.saved
+		m.Metrics = metrics
+		if err := modelfile.Save(r.o.out, m); err != nil {
+			return writeErr("model", r.o.out, err)
+		}
+		fmt.Fprintf(r.w, "; saved %s", r.o.out)
+	}
+	fmt.Fprintln(r.w)
+	fmt.Fprint(r.w, r.divergedNote)
+	if r.p.val != nil {
+		fmt.Fprintf(r.w, "kept epoch %d of %d: best validation %s %.4f (ties go to the larger minimum margin)\n", r.out.Best.Epoch, r.res.Epochs, r.out.Metric, r.out.Best.Value)
+	}
+	writeLines(r.w, decision)
+	fmt.Fprintf(r.w, "classes: %s\n", joinClasses(r.p.classes))
+	if r.p.table != nil && r.p.table.Dropped > 0 {
+		fmt.Fprintf(r.w, "rows dropped for missing values: %d\n", r.p.table.Dropped)
+	}
+	fmt.Fprintf(r.w, "train accuracy %.4f on %d rows; ρ = %.4g\n", metrics["train_accuracy"], r.p.train.Rows, r.n.Rho())
+	if !health.OK() {
+		fmt.Fprintf(r.w, "\nwarning: the kept model looks degenerate: %s\n", cliHealth(health))
+	}
+	for _, s := range []struct {
+		name string
+		conf *score.Confusion
+	}{{"validation", val}, {"test", test}} {
+		if s.conf != nil {
+			fmt.Fprintf(r.w, "\n%s rows:\n", s.name)
+			s.conf.Write(r.w)
+		}
+	}
+	if r.rr != nil {
+		title := r.o.title
+		if title == "" {
+			title = reportTitle(r.c)
+			if r.c.Data == "-" {
+				title = "rhomb run report: " + stdinName
+			}
+		}
+		if err := r.rr.write(r.o.report, title, r.o.source, r.o.notes, r.c, r.p, r.model, r.n, r.res, val, test, r.saved); err != nil {
+			return fmt.Errorf("report: %w", err)
+		}
+		fmt.Fprintf(r.w, "\nreport written to %s\n", r.o.report)
+	}
+	return nil
+}
+
+func train[T net.Float](e *env, c *config, o *runOptions) error {
+	p, err := startRun[T](e, c, o)
+	if err != nil {
+		return err
 	}
 	if c.Search > 0 {
 		return trainSearch(e, c, o, p)
 	}
-	var (
-		n       *net.Network[T]
-		wrapped *normalize.Net[T]
-		resumed *modelfile.Model[T]
-	)
-	if o.resume != "" {
-		if resumed, err = modelfile.Load[T](o.resume); err != nil {
-			return modelError{err}
-		}
-		n, wrapped = resumed.Network, resumed.Normalized
-		if n.In() != p.train.Features || n.Out() != p.train.Outputs {
-			return modelError{fmt.Errorf("%s: the network takes %d features and gives %d outputs, the data has %d and %d", o.resume, n.In(), n.Out(), p.train.Features, p.train.Outputs)}
-		}
-	} else {
-		if n, err = buildNetwork[T](c, p.train.Features, p.train.Outputs); err != nil {
-			return err
-		}
-		no, err := c.normOptions()
-		if err != nil {
-			return err
-		}
-		if no != nil {
-			if wrapped, err = normalize.Wrap(n, *no); err != nil {
-				return usageError{fmt.Errorf("train: %w", err)}
-			}
-		}
+	n, wrapped, resumed, err := networkFor(c, o, p)
+	if err != nil {
+		return err
 	}
 	var model optim.Model[T] = n
 	if wrapped != nil {
@@ -448,32 +599,8 @@ func train[T net.Float](e *env, c *config, o *runOptions) error {
 		return usageError{fmt.Errorf("train: %w", err)}
 	}
 	if resumed != nil {
-		var err error
-		if resumed.Session == nil {
-			// A checkpoint written before train kept its best epoch: the
-			// trainer's state is all there is, and the run goes on from it.
-			err = sess.Trainer().Restore(*resumed.Checkpoint)
-		} else {
-			var ss recipe.SessionState
-			if err := json.Unmarshal(resumed.Session, &ss); err != nil {
-				return modelError{fmt.Errorf("%s: session record: %w", o.resume, err)}
-			}
-			ss.Kept = resumed.Kept
-			if o.newLR > 0 || o.rescale > 0 {
-				// A new step size: the rate, and the cap a rollback set,
-				// follow it, and the run may again lower it on its own.
-				c.StepChanges[len(c.StepChanges)-1].Was = ss.Rate
-				if o.newLR > 0 {
-					ss.Rate, ss.Cap = o.newLR, 0
-				} else {
-					ss.Rate, ss.Cap = ss.Rate*o.rescale, ss.Cap*o.rescale
-				}
-				ss.Rollbacks = 0
-			}
-			err = sess.Restore(ss, *resumed.Checkpoint)
-		}
-		if err != nil {
-			return modelError{fmt.Errorf("%s: %w", o.resume, err)}
+		if err := restoreSession(sess, resumed, c, o); err != nil {
+			return err
 		}
 	}
 	ctx, stop := signal.NotifyContext(context.Background(), os.Interrupt, syscall.SIGTERM)
@@ -540,87 +667,8 @@ func train[T net.Float](e *env, c *config, o *runOptions) error {
 		}
 	}
 
-	metrics := map[string]any{"epochs": res.Epochs, "steps": res.Steps, "status": res.Status.String(), "rho": n.Rho(),
-		"best_epoch": out.Best.Epoch, "ranked_by": out.Metric.String(), "stopped": out.Stop.String(), "learning_rate": out.Rate}
-	if !math.IsNaN(res.Loss) {
-		metrics["loss"] = res.Loss
-	}
-	if !math.IsNaN(out.Sharpness) {
-		metrics["sharpness"] = out.Sharpness
-	}
-	saved := bundle(nil)
-	decision, err := fitDecision(c, saved, p.val)
-	if err != nil {
-		return err
-	}
-	report := func(name string, set *data.Set[T]) *score.Confusion {
-		if set == nil {
-			return nil
-		}
-		conf := decidedConfusion(model, saved, set, p.classes)
-		metrics[name+"_accuracy"] = conf.Accuracy()
-		metrics[name+"_rows"] = set.Rows
-		return conf
-	}
-	report("train", p.train)
-	val := report("validation", p.val)
-	test := report("test", p.test)
-	var health recipe.Health
-	if p.val != nil {
-		health = recipe.Check(model, p.val, p.classes)
-		if !health.OK() {
-			metrics["health"] = strings.Join(health.Problems, "; ")
-		}
-	}
-	if c.Strict && !health.OK() {
-		return fmt.Errorf("the trained model is degenerate, so nothing was saved (-strict): %s", cliHealth(health))
-	}
-	fmt.Fprintf(w, "trained %d epochs (%d steps, %s)", res.Epochs, res.Steps, out.Stop)
-	if o.out != "" {
-		m := saved
-		m.Metrics = metrics
-		if err := modelfile.Save(o.out, m); err != nil {
-			return writeErr("model", o.out, err)
-		}
-		fmt.Fprintf(w, "; saved %s", o.out)
-	}
-	fmt.Fprintln(w)
-	fmt.Fprint(w, divergedNote)
-	if p.val != nil {
-		fmt.Fprintf(w, "kept epoch %d of %d: best validation %s %.4f (ties go to the larger minimum margin)\n", out.Best.Epoch, res.Epochs, out.Metric, out.Best.Value)
-	}
-	writeLines(w, decision)
-	fmt.Fprintf(w, "classes: %s\n", joinClasses(p.classes))
-	if p.table != nil && p.table.Dropped > 0 {
-		fmt.Fprintf(w, "rows dropped for missing values: %d\n", p.table.Dropped)
-	}
-	fmt.Fprintf(w, "train accuracy %.4f on %d rows; ρ = %.4g\n", metrics["train_accuracy"], p.train.Rows, n.Rho())
-	if !health.OK() {
-		fmt.Fprintf(w, "\nwarning: the kept model looks degenerate: %s\n", cliHealth(health))
-	}
-	for _, r := range []struct {
-		name string
-		c    *score.Confusion
-	}{{"validation", val}, {"test", test}} {
-		if r.c != nil {
-			fmt.Fprintf(w, "\n%s rows:\n", r.name)
-			r.c.Write(w)
-		}
-	}
-	if rr != nil {
-		title := o.title
-		if title == "" {
-			title = reportTitle(c)
-			if c.Data == "-" {
-				title = "rhomb run report: " + stdinName
-			}
-		}
-		if err := rr.write(o.report, title, o.source, o.notes, c, p, model, n, res, val, test, saved); err != nil {
-			return fmt.Errorf("report: %w", err)
-		}
-		fmt.Fprintf(w, "\nreport written to %s\n", o.report)
-	}
-	return nil
+	end := &runEnd[T]{w: w, c: c, o: o, p: p, model: model, n: n, res: res, out: out, saved: bundle(nil), rr: rr, divergedNote: divergedNote}
+	return end.finish()
 }
 
 // searchable reports the flags a search cannot honour: it builds its
