@@ -211,60 +211,11 @@ func FitDecision[T net.Float](file *modelfile.Model[T], val *data.Set[T], o Deci
 		if d.Calibration == nil {
 			rep.Notes = append(rep.Notes, "no prediction sets: they need calibrated probabilities")
 		} else {
-			non := make([]float64, 0, len(half[1]))
-			for _, r := range half[1] {
-				probs(r, p, d.Calibration)
-				non = append(non, 1-p[truth[r]])
-			}
-			q := min(calib.ConformalThreshold(non, 1-o.Coverage), 1)
-			d.Sets = &schema.Sets{Coverage: o.Coverage, Quantile: q}
-			covered, size := 0, 0
-			var set []int
-			for _, r := range half[1] {
-				probs(r, p, d.Calibration)
-				set = arith.PredictionSet(p, q, set[:0])
-				size += len(set)
-				for _, j := range set {
-					if j == truth[r] {
-						covered++
-					}
-				}
-			}
-			rep.Coverage = float64(covered) / float64(len(half[1]))
-			rep.MeanSetSize = float64(size) / float64(len(half[1]))
-			if q >= 1 {
-				rep.Notes = append(rep.Notes, fmt.Sprintf("with %d calibration rows, a coverage of %g puts every class in every set; ask for less coverage or give more validation rows", len(half[1]), o.Coverage))
-			}
+			fitSets(d, rep, o.Coverage, half[1], truth, width, func(r int, dst []float64) { probs(r, dst, d.Calibration) })
 		}
 	}
 	if o.TargetError > 0 {
-		margins := make([]float64, rows)
-		correct := make([]bool, rows)
-		rho := cm.Scale()
-		for r := range rows {
-			s := scores[r*k : (r+1)*k]
-			margins[r] = arith.Gap(s, threshold) / rho
-			correct[r] = arith.Decide(s, threshold) == truth[r]
-		}
-		tau, answered := calib.RejectThreshold(margins, correct, o.TargetError)
-		if math.IsInf(tau, 1) {
-			rep.Notes = append(rep.Notes, fmt.Sprintf("no reject option: no margin floor keeps the error of the answered validation rows at or below %g", o.TargetError))
-		} else {
-			d.Abstain = &schema.Abstain{MarginFloor: max(tau, 0), TargetError: o.TargetError, Answered: answered}
-			wrong, n := 0, 0
-			for r := range rows {
-				if margins[r] >= d.Abstain.MarginFloor {
-					n++
-					if !correct[r] {
-						wrong++
-					}
-				}
-			}
-			rep.Answered = float64(n) / float64(rows)
-			if n > 0 {
-				rep.AnsweredError = float64(wrong) / float64(n)
-			}
-		}
+		fitAbstain(d, rep, o.TargetError, scores, k, truth, threshold, cm.Scale())
 	}
 	if d.Threshold == nil && d.Calibration == nil && d.Sets == nil && d.Abstain == nil {
 		return nil, rep, nil
@@ -323,4 +274,67 @@ func metricName(m Metric) string {
 		return "macro-f1"
 	}
 	return "balanced"
+}
+
+// fitSets calibrates split-conformal prediction sets of the given coverage
+// on the rows use, whose calibrated probabilities probs writes, and
+// measures them there.
+func fitSets(d *schema.Decision, rep *DecisionReport, coverage float64, use, truth []int, width int, probs func(r int, dst []float64)) {
+	p := make([]float64, width)
+	non := make([]float64, 0, len(use))
+	for _, r := range use {
+		probs(r, p)
+		non = append(non, 1-p[truth[r]])
+	}
+	q := min(calib.ConformalThreshold(non, 1-coverage), 1)
+	d.Sets = &schema.Sets{Coverage: coverage, Quantile: q}
+	covered, size := 0, 0
+	var set []int
+	for _, r := range use {
+		probs(r, p)
+		set = arith.PredictionSet(p, q, set[:0])
+		size += len(set)
+		for _, j := range set {
+			if j == truth[r] {
+				covered++
+			}
+		}
+	}
+	rep.Coverage = float64(covered) / float64(len(use))
+	rep.MeanSetSize = float64(size) / float64(len(use))
+	if q >= 1 {
+		rep.Notes = append(rep.Notes, fmt.Sprintf("with %d calibration rows, a coverage of %g puts every class in every set; ask for less coverage or give more validation rows", len(use), coverage))
+	}
+}
+
+// fitAbstain chooses the reject option's margin floor on every validation
+// row for the target error rate, and measures the rows it answers.
+func fitAbstain(d *schema.Decision, rep *DecisionReport, target float64, scores []float64, k int, truth []int, threshold, rho float64) {
+	rows := len(truth)
+	margins := make([]float64, rows)
+	correct := make([]bool, rows)
+	for r := range rows {
+		s := scores[r*k : (r+1)*k]
+		margins[r] = arith.Gap(s, threshold) / rho
+		correct[r] = arith.Decide(s, threshold) == truth[r]
+	}
+	tau, answered := calib.RejectThreshold(margins, correct, target)
+	if math.IsInf(tau, 1) {
+		rep.Notes = append(rep.Notes, fmt.Sprintf("no reject option: no margin floor keeps the error of the answered validation rows at or below %g", target))
+		return
+	}
+	d.Abstain = &schema.Abstain{MarginFloor: max(tau, 0), TargetError: target, Answered: answered}
+	wrong, n := 0, 0
+	for r := range rows {
+		if margins[r] >= d.Abstain.MarginFloor {
+			n++
+			if !correct[r] {
+				wrong++
+			}
+		}
+	}
+	rep.Answered = float64(n) / float64(rows)
+	if n > 0 {
+		rep.AnsweredError = float64(wrong) / float64(n)
+	}
 }
