@@ -100,12 +100,28 @@ func Collapse(f Features) (*CollapseReport, error) {
 	}
 	rep := &CollapseReport{Classes: C, Rows: N, Width: d, Counts: make([]int, C)}
 
-	// Class means and the global mean.
-	mu := make([]float64, C*d)
+	mu, M, err := classMeans(f, rep)
+	if err != nil {
+		return nil, err
+	}
+	if err := withinBetween(f, rep, mu, M); err != nil {
+		return nil, err
+	}
+	meanGeometry(rep, M, C, d)
+	readoutAlignment(rep, W, M, C, d)
+	nearestMean(f, rep, W, mu)
+	return rep, nil
+}
+
+// classMeans counts the rows of each class and returns the class means mu
+// (C×d) and M, the means centred on the global mean (C×d).
+func classMeans(f Features, rep *CollapseReport) (mu, M []float64, err error) {
+	C, d, N := f.Classes, f.Width, f.Rows
+	mu = make([]float64, C*d)
 	muG := make([]float64, d)
 	for n, c := range f.Labels {
 		if c < 0 || c >= C {
-			return nil, fmt.Errorf("gauge: Collapse: row %d has class %d; want 0 to %d", n, c, C-1)
+			return nil, nil, fmt.Errorf("gauge: Collapse: row %d has class %d; want 0 to %d", n, c, C-1)
 		}
 		rep.Counts[c]++
 		h := f.H[n*d : (n+1)*d]
@@ -116,7 +132,7 @@ func Collapse(f Features) (*CollapseReport, error) {
 	}
 	for c, k := range rep.Counts {
 		if k == 0 {
-			return nil, fmt.Errorf("%w (class %d)", ErrEmptyClass, c)
+			return nil, nil, fmt.Errorf("%w (class %d)", ErrEmptyClass, c)
 		}
 		for j := range d {
 			mu[c*d+j] /= float64(k)
@@ -125,13 +141,20 @@ func Collapse(f Features) (*CollapseReport, error) {
 	for j := range muG {
 		muG[j] /= float64(N)
 	}
-	M := make([]float64, C*d)
+	M = make([]float64, C*d)
 	for c := range C {
 		for j := range d {
 			M[c*d+j] = mu[c*d+j] - muG[j]
 		}
 	}
 
+	return mu, M, nil
+}
+
+// withinBetween is NC1, the within-class spread against the between-class
+// spread, Tr(Σ_W Σ_B⁺)/C.
+func withinBetween(f Features, rep *CollapseReport, mu, M []float64) error {
+	C, d, N := f.Classes, f.Width, f.Rows
 	// NC1. Σ_B = MᵀM/C = V diag(σ²/C) Vᵀ from the thin SVD M = U diag(σ) Vᵀ,
 	// so Σ_B⁺ = Σ_{σ_i>tol} v_i v_iᵀ·C/σ_i², and
 	// Tr(Σ_W Σ_B⁺) = Σ_i (C/σ_i²)·v_iᵀ Σ_W v_i = Σ_i (C/σ_i²)·(1/N)Σ_n ((h_n − μ_{y_n})·v_i)².
@@ -139,7 +162,7 @@ func Collapse(f Features) (*CollapseReport, error) {
 	// O(C·d·min(C, d) + N·d·C).
 	var svd mat.SVD
 	if !svd.Factorize(mat.NewDense(C, d, M), mat.SVDThinV) {
-		return nil, errors.New("gauge: Collapse: the SVD of the class means did not converge")
+		return errors.New("gauge: Collapse: the SVD of the class means did not converge")
 	}
 	sig := svd.Values(nil)
 	var V mat.Dense
@@ -174,6 +197,12 @@ func Collapse(f Features) (*CollapseReport, error) {
 		rep.NC1 = math.Inf(1)
 	}
 
+	return nil
+}
+
+// meanGeometry is NC2: how equal the centred class means' norms are, and
+// how close their angles are to a simplex's.
+func meanGeometry(rep *CollapseReport, M []float64, C, d int) {
 	// NC2.
 	norms := make([]float64, C)
 	for c := range C {
@@ -192,6 +221,11 @@ func Collapse(f Features) (*CollapseReport, error) {
 	rep.NC2Angle /= float64(len(cosines))
 	_, rep.NC2AngleStd = meanStd(cosines)
 
+}
+
+// readoutAlignment is NC3, the distance between the normalized readout and
+// the normalized centred means, and the spread of the readout's row norms.
+func readoutAlignment(rep *CollapseReport, W, M []float64, C, d int) {
 	// NC3 and the readout's equinorm.
 	rep.NC3, rep.ReadoutNorm = math.NaN(), math.NaN()
 	if W != nil {
@@ -210,6 +244,12 @@ func Collapse(f Features) (*CollapseReport, error) {
 		rep.ReadoutNorm = spread(rn)
 	}
 
+}
+
+// nearestMean is NC4: the share of rows whose decision is the class of the
+// nearest class mean.
+func nearestMean(f Features, rep *CollapseReport, W, mu []float64) {
+	C, d, N := f.Classes, f.Width, f.Rows
 	// NC4.
 	rep.NC4 = math.NaN()
 	if f.Decisions != nil || W != nil {
@@ -244,7 +284,6 @@ func Collapse(f Features) (*CollapseReport, error) {
 		}
 		rep.NC4 = float64(agree) / float64(N)
 	}
-	return rep, nil
 }
 
 // CollapseOf reads the features of every row of set at the output of the
