@@ -97,8 +97,8 @@ func NewEquilibrium(o EquilibriumOptions) *Equilibrium {
 // Options returns the criterion in force, defaults filled in.
 func (e *Equilibrium) Options() EquilibriumOptions { return e.o }
 
-// RelGap returns |ρ − ρ*|/ρ*, or NaN when ρ* is not a positive number.
-func RelGap(rho, rhoStar float64) float64 {
+// relGap returns |ρ − ρ*|/ρ*, or NaN when ρ* is not a positive number.
+func relGap(rho, rhoStar float64) float64 {
 	if !(rhoStar > 0) || math.IsInf(rhoStar, 0) {
 		return math.NaN()
 	}
@@ -118,7 +118,7 @@ func Speed(dirSpeed []float64) float64 {
 // Observe takes one step's info and returns the state after it. It keeps
 // nothing of s.
 func (e *Equilibrium) Observe(s *optim.StepInfo) EquilibriumState {
-	gap := RelGap(s.Rho, s.RhoStar)
+	gap := relGap(s.Rho, s.RhoStar)
 	speed := Speed(s.DirSpeed)
 	if speed > e.peak {
 		e.peak = speed

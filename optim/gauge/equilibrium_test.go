@@ -45,8 +45,8 @@ func TestEquilibriumSequence(t *testing.T) {
 	if e.Reached() != 7 || e.Last().Peak != 5 {
 		t.Errorf("reached at %d, peak %v; want 7 and 5", e.Reached(), e.Last().Peak)
 	}
-	if RelGap(1, 0) == RelGap(1, 0) || !math.IsNaN(RelGap(1, -2)) {
-		t.Error("RelGap of a non-positive ρ* must be NaN")
+	if relGap(1, 0) == relGap(1, 0) || !math.IsNaN(relGap(1, -2)) {
+		t.Error("relGap of a non-positive ρ* must be NaN")
 	}
 }
 
@@ -103,12 +103,12 @@ func TestEquilibriumReachedInTraining(t *testing.T) {
 		f[i] = v / rho
 	}
 	star := loss.Square[float64]{}.RhoStar(f, set.Y, set.Rows, 1, lambda)
-	t.Logf("stopped at step %d: ρ %v (before the last update %v), full-set ρ* %v, gap %v; detector %+v", res.Steps, rho, at, star, RelGap(rho, star), e.Last())
+	t.Logf("stopped at step %d: ρ %v (before the last update %v), full-set ρ* %v, gap %v; detector %+v", res.Steps, rho, at, star, relGap(rho, star), e.Last())
 	// The detector saw the weights before the last update; these are after
 	// it. For the quadratic L(ρ) a gradient step with η·2(Σf²/N + λ) < 2
 	// moves ρ towards ρ*, and the directions barely move (their speed is
 	// below 5% of its peak), so the gap is still within GapTol.
-	if g := RelGap(rho, star); !(g <= e.Options().GapTol) {
+	if g := relGap(rho, star); !(g <= e.Options().GapTol) {
 		t.Errorf("full-set gap after the run %v > GapTol %v", g, e.Options().GapTol)
 	}
 	if errors.Is(err, optim.ErrStop) {

@@ -101,12 +101,12 @@ func MarginsOf[T net.Float](m Model[T], set *data.Set[T], o MarginOptions) (*Mar
 	for i := range vals {
 		vals[i] /= rho
 	}
-	return Summarize(vals, labels, classes(cols), rho, o)
+	return summarize(vals, labels, classes(cols), rho, o)
 }
 
-// Summarize builds a MarginReport from margins already computed, with
+// summarize builds a MarginReport from margins already computed, with
 // labels[i] the class of vals[i] in [0, nclass). rho is recorded as given.
-func Summarize(vals []float64, labels []int, nclass int, rho float64, o MarginOptions) (*MarginReport, error) {
+func summarize(vals []float64, labels []int, nclass int, rho float64, o MarginOptions) (*MarginReport, error) {
 	if len(vals) != len(labels) {
 		return nil, fmt.Errorf("gauge: %d margins but %d labels", len(vals), len(labels))
 	}
@@ -147,7 +147,7 @@ func Summarize(vals []float64, labels []int, nclass int, rho float64, o MarginOp
 		}
 		edges = UniformEdges(lo, hi, bins)
 	}
-	h, err := NewHistogram(vals, edges)
+	h, err := newHistogram(vals, edges)
 	if err != nil {
 		return nil, err
 	}
@@ -179,17 +179,17 @@ func stats(v []float64, gamma float64, probs []float64) MarginStats {
 	}
 	s.FracBelow = float64(s.Below) / float64(len(v))
 	for i, p := range probs {
-		s.Quantiles[i] = Quantile(v, p)
+		s.Quantiles[i] = quantile(v, p)
 	}
 	return s
 }
 
-// Quantile returns the p-quantile of sorted by linear interpolation between
+// quantile returns the p-quantile of sorted by linear interpolation between
 // order statistics: with h = (n−1)·p, x_⌊h⌋ + (h − ⌊h⌋)(x_⌊h⌋+1 − x_⌊h⌋).
 // This is definition 7 of Hyndman and Fan (1996), the default of most
 // statistics software; it gives the minimum at p = 0, the maximum at p = 1
 // and the usual median. sorted must be increasing and non-empty.
-func Quantile(sorted []float64, p float64) float64 {
+func quantile(sorted []float64, p float64) float64 {
 	h := float64(len(sorted)-1) * p
 	i := int(math.Floor(h))
 	if i >= len(sorted)-1 {
@@ -208,8 +208,8 @@ func UniformEdges(lo, hi float64, bins int) []float64 {
 	return e
 }
 
-// NewHistogram counts vals into the bins between edges (see Histogram).
-func NewHistogram(vals, edges []float64) (Histogram, error) {
+// newHistogram counts vals into the bins between edges (see Histogram).
+func newHistogram(vals, edges []float64) (Histogram, error) {
 	if len(edges) < 2 {
 		return Histogram{}, fmt.Errorf("gauge: histogram needs at least two edges, got %d", len(edges))
 	}

@@ -120,17 +120,17 @@ func TestMarginsScaleFree(t *testing.T) {
 	}
 }
 
-// Quantile is definition 7 of Hyndman and Fan (1996) (from memory): for
+// quantile is definition 7 of Hyndman and Fan (1996) (from memory): for
 // {1, 2, 3, 4}, p = 0.25 gives h = 0.75, 1 + 0.75 = 1.75; p = 0.5 the
 // usual median 2.5; p = 0 and 1 the extremes.
 func TestQuantile(t *testing.T) {
 	x := []float64{1, 2, 3, 4}
 	for _, c := range []struct{ p, want float64 }{{0, 1}, {0.25, 1.75}, {0.5, 2.5}, {0.9, 3.7}, {1, 4}} {
-		if got := Quantile(x, c.p); math.Abs(got-c.want) > 4*eps*4 {
-			t.Errorf("Quantile(%v) = %v, want %v", c.p, got, c.want)
+		if got := quantile(x, c.p); math.Abs(got-c.want) > 4*eps*4 {
+			t.Errorf("quantile(%v) = %v, want %v", c.p, got, c.want)
 		}
 	}
-	if Quantile([]float64{7}, 0.3) != 7 {
+	if quantile([]float64{7}, 0.3) != 7 {
 		t.Error("one value")
 	}
 }
@@ -144,7 +144,7 @@ func TestHistogramAgainstGonum(t *testing.T) {
 		x[i] = rng.NormFloat64()
 	}
 	edges := UniformEdges(-5, 5, 37)
-	h, err := NewHistogram(x, edges)
+	h, err := newHistogram(x, edges)
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -157,11 +157,11 @@ func TestHistogramAgainstGonum(t *testing.T) {
 		}
 	}
 	// Outside values are counted, not dropped; the last edge is inside.
-	h, _ = NewHistogram([]float64{-2, 0, 1, 3, math.NaN()}, []float64{-1, 0, 1})
+	h, _ = newHistogram([]float64{-2, 0, 1, 3, math.NaN()}, []float64{-1, 0, 1})
 	if h.Under != 1 || h.Over != 1 || h.NaN != 1 || !slices.Equal(h.Counts, []int{0, 2}) {
 		t.Errorf("%+v: want under 1, over 1, NaN 1, counts [0 2]", h)
 	}
-	if _, err := NewHistogram(x, []float64{0, 0}); err == nil {
+	if _, err := newHistogram(x, []float64{0, 0}); err == nil {
 		t.Error("equal edges accepted")
 	}
 }
@@ -171,7 +171,7 @@ func TestHistogramAgainstGonum(t *testing.T) {
 func TestNearlyEqualMarginsHistogram(t *testing.T) {
 	m := 0.0523493068345801
 	edges := UniformEdges(m, math.Nextafter(m, 1), 20)
-	if _, err := NewHistogram([]float64{m}, edges); err == nil {
+	if _, err := newHistogram([]float64{m}, edges); err == nil {
 		t.Fatal("collapsed edges accepted; the test no longer exercises the case")
 	}
 	n, err := net.NewBuilder[float64](1).Readout("w", 1).Build()
