@@ -5,6 +5,8 @@ import (
 	"slices"
 	"strings"
 	"testing"
+
+	"github.com/rhomb/rhomb/optim/modelfile"
 )
 
 // TestClassifyCarryAndSeparator: -carry copies the named input columns to
@@ -46,4 +48,30 @@ func TestClassifyCarryAndSeparator(t *testing.T) {
 	}
 	r = run(t, nil, "classify", "-model", model, "-data", csvPath, "-sep", "ab")
 	want(t, r, exitUsage, "-sep")
+}
+
+// TestTrainSeparator: train -sep reads a semicolon-separated copy of the
+// data to the same model, weight for weight, as the comma-separated file;
+// a bad -sep is a usage error naming the flag.
+func TestTrainSeparator(t *testing.T) {
+	dir := t.TempDir()
+	csvPath := sensorCSV(t, dir, 200)
+	semi := writeFile(t, filepath.Join(dir, "semi.csv"), strings.ReplaceAll(readFile(t, csvPath), ",", ";"))
+	a, b := filepath.Join(dir, "a.model"), filepath.Join(dir, "b.model")
+	mustRun(t, "train", "-data", csvPath, "-label", "state", "-hidden", "6", "-epochs", "3", "-quiet", "-o", a)
+	mustRun(t, "train", "-data", semi, "-sep", ";", "-label", "state", "-hidden", "6", "-epochs", "3", "-quiet", "-o", b)
+	ma, err := modelfile.Load[float32](a)
+	if err != nil {
+		t.Fatal(err)
+	}
+	mb, err := modelfile.Load[float32](b)
+	if err != nil {
+		t.Fatal(err)
+	}
+	for i, p := range ma.Network.Params() {
+		if !slices.Equal(p.Value, mb.Network.Params()[i].Value) {
+			t.Fatalf("parameter %s differs between the comma and the semicolon file", p.Name)
+		}
+	}
+	want(t, run(t, nil, "train", "-data", semi, "-sep", "ab", "-label", "state", "-o", b), exitUsage, "-sep")
 }

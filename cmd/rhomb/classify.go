@@ -95,6 +95,12 @@ func separator(s string) (rune, error) {
 	return r[0], nil
 }
 
+// validSeparator reports whether s is a -sep value separator accepts.
+func validSeparator(s string) bool {
+	_, err := separator(s)
+	return err == nil
+}
+
 // splitList splits a comma-separated flag value, dropping blanks.
 func splitList(s string) []string {
 	var out []string

@@ -33,6 +33,7 @@ type config struct {
 	NewAsNil bool              `json:"unknown_as_zeros,omitempty"`
 	KeepIDs  bool              `json:"keep_ids,omitempty"`
 	LevelCap int               `json:"level_cap,omitempty"`
+	Sep      string            `json:"separator,omitempty"` // the CSV field separator, "" for ","
 	Holdout  float64           `json:"holdout"`
 	Test     float64           `json:"test"`
 	// Network.
@@ -157,6 +158,7 @@ func (c *config) bind(fs *flag.FlagSet) {
 	fs.Var((*listFlag)(&c.Markers), "na", "comma-separated cell `values` that mean missing (default \"\",NA,NaN,null)")
 	fs.BoolVar(&c.UnitNorm, "unit-norm", c.UnitNorm, "scale every input row to unit length after encoding")
 	fs.BoolVar(&c.KeepIDs, "keep-ids", c.KeepIDs, "keep categorical columns whose values are nearly all distinct (identifiers, timestamps, free text), which are refused otherwise")
+	fs.StringVar(&c.Sep, "sep", c.Sep, "field `separator` of the CSV data: one character, or \"tab\" (default \",\")")
 	fs.IntVar(&c.LevelCap, "level-cap", c.LevelCap, "keep the `N` most frequent categories of each categorical column that has more than N, and encode every other value, including ones not seen in training, as one \"other\" feature (0: keep every category)")
 	fs.BoolVar(&c.NewAsNil, "unknown-zero", c.NewAsNil, "encode a category unseen in training as all zeros instead of failing")
 	fs.Float64Var(&c.Holdout, "holdout", c.Holdout, "`fraction` of rows held out for validation (stratified)")
@@ -228,6 +230,8 @@ func (c *config) check() error {
 		return bad("train: -target-loss %v: want 0 (none) or a positive loss", c.Target)
 	case !(c.Rho0 >= 0) || math.IsInf(c.Rho0, 0):
 		return bad("train: -rho0 %v: want 0 (the initialization's own scale) or a positive scale", c.Rho0)
+	case c.Sep != "" && !validSeparator(c.Sep):
+		return bad("train: -sep %q: give one character other than a quote or a line break (or \"tab\")", c.Sep)
 	case c.LevelCap < 0:
 		return bad("train: -level-cap %d: want 0 (every category) or a number of categories to keep", c.LevelCap)
 	case c.Batch < 0:
@@ -274,6 +278,9 @@ func (c *config) record() json.RawMessage {
 
 func (c *config) csvOptions() data.CSVOptions {
 	o := data.CSVOptions{Label: c.Label, Ignore: c.Skip, Missing: c.Markers, Kinds: map[string]data.Kind{}, Advise: flagWords}
+	if c.Sep != "" {
+		o.Comma, _ = separator(c.Sep) // checked by validate
+	}
 	for name, k := range c.Kinds {
 		o.Kinds[name] = data.Numeric
 		if k == "categorical" {
