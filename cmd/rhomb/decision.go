@@ -1,14 +1,17 @@
 package main
 
 import (
+	"bytes"
 	"fmt"
 	"io"
+	"slices"
 	"strings"
 
 	"github.com/rhomb/rhomb/data"
 	"github.com/rhomb/rhomb/internal/arith"
 	"github.com/rhomb/rhomb/internal/score"
 	"github.com/rhomb/rhomb/net"
+	"github.com/rhomb/rhomb/net/classify"
 	"github.com/rhomb/rhomb/optim"
 	"github.com/rhomb/rhomb/optim/modelfile"
 	"github.com/rhomb/rhomb/optim/recipe"
@@ -91,4 +94,51 @@ func decidedConfusion[T net.Float](model optim.Model[T], m *modelfile.Model[T], 
 		c.Add(s.Class(r), arith.Decide(out64, t))
 	})
 	return c
+}
+
+// servedMargins records in metrics the normalized margins of the training
+// rows as the saved model serves them (net/classify's Answer.Margin, the
+// figure a server histograms): the minimum, the 5%, 50% and 95% points
+// and the mean, under margin_min, margin_p05, margin_p50, margin_p95 and
+// margin_mean, so that a server can show its live rows' margins beside
+// them. Nothing is recorded when the model cannot be read back.
+func servedMargins[T net.Float](m *modelfile.Model[T], set *data.Set[T], metrics map[string]any) {
+	if set == nil || set.Rows == 0 {
+		return
+	}
+	var b bytes.Buffer
+	if modelfile.Write(&b, m) != nil {
+		return
+	}
+	c, err := classify.Read(b.Bytes(), "trained model")
+	if err != nil {
+		return
+	}
+	x := make([]float64, len(set.X))
+	for i, v := range set.X {
+		x[i] = float64(v)
+	}
+	answers := make([]classify.Answer, set.Rows)
+	if c.ClassifyVectors(nil, x, set.Rows, answers) != nil {
+		return
+	}
+	v := make([]float64, set.Rows)
+	var sum float64
+	for r, a := range answers {
+		v[r] = a.Margin
+		sum += a.Margin
+	}
+	slices.Sort(v)
+	// The p-quantile by linear interpolation between order statistics
+	// (Hyndman and Fan 1996, definition 7; from memory).
+	q := func(p float64) float64 {
+		h := p * float64(len(v)-1)
+		lo := int(h)
+		if lo+1 >= len(v) {
+			return v[len(v)-1]
+		}
+		return v[lo] + (h-float64(lo))*(v[lo+1]-v[lo])
+	}
+	metrics["margin_min"], metrics["margin_p05"], metrics["margin_p50"], metrics["margin_p95"] = v[0], q(0.05), q(0.5), q(0.95)
+	metrics["margin_mean"] = sum / float64(len(v))
 }

@@ -84,3 +84,27 @@ func jsonInts(v []int) string {
 	b, _ := json.Marshal(v)
 	return string(b)
 }
+
+// TestServedMarginsRecorded: the saved model records its training rows'
+// normalized margins as served (the figures a server shows beside the
+// live rows' histogram), in the order quantiles must have: min ≤ p05 ≤
+// p50 ≤ p95, and min ≤ mean (a margin is a distance, never negative).
+func TestServedMarginsRecorded(t *testing.T) {
+	dir := t.TempDir()
+	_, model := sensorModel(t, dir)
+	m, err := modelfile.Load[float32](model)
+	if err != nil {
+		t.Fatal(err)
+	}
+	get := func(k string) float64 {
+		v, ok := m.Metrics[k].(float64)
+		if !ok {
+			t.Fatalf("the model records no %s: %v", k, m.Metrics)
+		}
+		return v
+	}
+	lo, p05, p50, p95, mean := get("margin_min"), get("margin_p05"), get("margin_p50"), get("margin_p95"), get("margin_mean")
+	if !(lo >= 0 && lo <= p05 && p05 <= p50 && p50 <= p95 && lo <= mean && p50 > 0) {
+		t.Fatalf("margins min %v, p05 %v, p50 %v, p95 %v, mean %v: out of order", lo, p05, p50, p95, mean)
+	}
+}

@@ -407,6 +407,7 @@ func (r *runEnd[T]) finish() error {
 		return conf
 	}
 	report("train", r.p.train)
+	servedMargins(r.saved, r.p.train, metrics)
 	val := report("validation", r.p.val)
 	test := report("test", r.p.test)
 	var health recipe.Health
@@ -753,6 +754,7 @@ func trainSearch[T net.Float](e *env, c *config, o *runOptions, p *prepared[T]) 
 	}
 	val := decidedConfusion(model, m, p.val, p.classes)
 	metrics["validation_accuracy"], metrics["validation_rows"] = val.Accuracy(), p.val.Rows
+	servedMargins(m, p.train, metrics)
 	var test *score.Confusion
 	if p.test != nil {
 		test = decidedConfusion(model, m, p.test, p.classes)

@@ -90,7 +90,7 @@ func parseFlags(args []string, getenv func(string) string, stderr io.Writer) (co
 	fs.StringVar(&c.tlsKey, "tls-key", "", "PEM private key `file` of -tls-cert")
 	fs.StringVar(&c.tokenFile, "token-file", "", "require a bearer token from `file` (one per line; blank lines and # comments skipped); "+tokenEnv+" adds comma-separated tokens")
 	fs.StringVar(&c.logFormat, "log-format", "text", "log record format: `text` or json")
-	buckets := fs.String("margin-buckets", joinFloats(defaultMarginBuckets), "upper bounds of the score-margin histogram, comma-separated, increasing")
+	buckets := fs.String("margin-buckets", joinFloats(defaultMarginBuckets), "upper bounds of the normalized-margin histogram, comma-separated, increasing")
 	if err := fs.Parse(args); err != nil {
 		return c, err
 	}

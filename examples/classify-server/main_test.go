@@ -544,7 +544,7 @@ func TestMetrics(t *testing.T) {
 			t.Fatalf("status %d: %s", code, b)
 		}
 		for _, a := range resp.Answers {
-			margins = append(margins, endpoint.ScoreMargin(a.Scores))
+			margins = append(margins, a.Margin)
 		}
 	}
 	r.call(t, "POST", "/classify", `{"rows": [`, "")
@@ -559,8 +559,8 @@ func TestMetrics(t *testing.T) {
 		`rhomb_serve_requests_total{code="200",route="/model"}`:                 1,
 		`rhomb_serve_request_duration_seconds_count{route="/classify"}`:         4,
 		`rhomb_serve_rows_classified_total`:                                     6,
-		`rhomb_serve_score_margin_count`:                                        6,
-		`rhomb_serve_score_margin_bucket{le="+Inf"}`:                            6,
+		`rhomb_serve_margin_count`:                                              6,
+		`rhomb_serve_margin_bucket{le="+Inf"}`:                                  6,
 		`rhomb_serve_model_info{version="` + ma.Info().Version + `"}`:           1,
 		`rhomb_serve_model_reloads_total{result="ok"}`:                          0,
 		`rhomb_serve_model_reloads_total{result="failed"}`:                      0,
@@ -579,8 +579,8 @@ func TestMetrics(t *testing.T) {
 	for _, x := range margins {
 		sum += x
 	}
-	if got := m["rhomb_serve_score_margin_sum"]; math.Abs(got-sum) > 6*0x1p-53*sum {
-		t.Errorf("score margin sum %v; the answers' margins add to %v", got, sum)
+	if got := m["rhomb_serve_margin_sum"]; math.Abs(got-sum) > 6*0x1p-53*sum {
+		t.Errorf("margin sum %v; the answers' margins add to %v", got, sum)
 	}
 	for _, le := range defaultMarginBuckets {
 		n := 0
@@ -589,7 +589,7 @@ func TestMetrics(t *testing.T) {
 				n++
 			}
 		}
-		key := `rhomb_serve_score_margin_bucket{le="` + strconv.FormatFloat(le, 'g', -1, 64) + `"}`
+		key := `rhomb_serve_margin_bucket{le="` + strconv.FormatFloat(le, 'g', -1, 64) + `"}`
 		if got, ok := m[key]; !ok || got != float64(n) {
 			t.Errorf("%s = %v; %d of the margins %v are ≤ %v", key, got, n, margins, le)
 		}

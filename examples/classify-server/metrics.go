@@ -13,10 +13,11 @@ import (
 
 // The metrics are described in docs/serving.md; keep the two in step.
 
-// defaultMarginBuckets are the upper bounds of the score-margin
-// histogram: scores of a model trained on ±1 or one-hot targets mostly
-// lie within a few units of 0, so the margins do too.
-var defaultMarginBuckets = []float64{0.05, 0.1, 0.2, 0.3, 0.5, 0.75, 1, 1.5, 2, 3, 5}
+// defaultMarginBuckets are the upper bounds of the margin histogram: a
+// normalized margin is the score gap divided by the network's scale ρ, so
+// it is small (most rows of the demo models fall between 10⁻³ and 1); the
+// bounds run in steps of about 2 over five decades.
+var defaultMarginBuckets = []float64{0.001, 0.002, 0.005, 0.01, 0.02, 0.05, 0.1, 0.2, 0.5, 1, 2, 5, 10}
 
 // latencyBuckets are the upper bounds, in seconds, of the request
 // duration histogram: from half a millisecond (one row on a fast
@@ -49,8 +50,8 @@ func newMetrics(reg prometheus.Registerer, marginBuckets []float64) *metrics {
 			Help: "Time from the handler's start to the response written, by route.", Buckets: latencyBuckets}, []string{"route"}),
 		rows: prometheus.NewCounter(prometheus.CounterOpts{Namespace: ns, Name: "rows_classified_total",
 			Help: "Rows classified in successful POST /classify requests."}),
-		margin: prometheus.NewHistogram(prometheus.HistogramOpts{Namespace: ns, Name: "score_margin",
-			Help:    "Plain score margin of each classified row: top score minus second score, or |score| for a one-output model; not divided by the network's scale.",
+		margin: prometheus.NewHistogram(prometheus.HistogramOpts{Namespace: ns, Name: "margin",
+			Help:    "Normalized margin of each classified row: top score minus second score (for one signed score, its distance from the decision threshold), divided by the network's scale; compare with rhomb_serve_training_margin.",
 			Buckets: marginBuckets}),
 		modelInfo: prometheus.NewGaugeVec(prometheus.GaugeOpts{Namespace: ns, Name: "model_info",
 			Help: "The model being served: 1, labelled with its version (the start of the model file's SHA-256)."}, []string{"version"}),
@@ -61,7 +62,7 @@ func newMetrics(reg prometheus.Registerer, marginBuckets []float64) *metrics {
 		reloads: prometheus.NewCounterVec(prometheus.CounterOpts{Namespace: ns, Name: "model_reloads_total",
 			Help: "Model reloads after the first load, by result: ok, or failed (the old model kept serving)."}, []string{"result"}),
 		trainMargin: prometheus.NewGaugeVec(prometheus.GaugeOpts{Namespace: ns, Name: "training_margin",
-			Help: "Normalized margin of the training rows as the model file records it (stat min or mean); absent when the file records none."}, []string{"stat"}),
+			Help: "Normalized margin of the training rows as the model file records it (stat min, p05, p50, p95 or mean: computed as the served margin is); absent when the file records none."}, []string{"stat"}),
 		trainRho: prometheus.NewGaugeVec(prometheus.GaugeOpts{Namespace: ns, Name: "training_rho",
 			Help: "The network's scale, the product of its layers' weight norms, as the model file records it; absent when the file records none."}, nil),
 	}
@@ -111,7 +112,7 @@ func (m *metrics) loaded(model *classify.Model, took time.Duration) {
 	m.loadSeconds.Set(took.Seconds())
 	m.loadedAt.SetToCurrentTime()
 	m.trainMargin.Reset()
-	for _, stat := range []string{"min", "mean"} {
+	for _, stat := range []string{"min", "p05", "p50", "p95", "mean"} {
 		if v, ok := info.Metrics["margin_"+stat].(float64); ok {
 			m.trainMargin.WithLabelValues(stat).Set(v)
 		}

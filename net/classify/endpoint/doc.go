@@ -75,7 +75,7 @@
 // message "request", with method, path, status, rows, latency,
 // model_version and remote (the connection's address; X-Forwarded-For is
 // not read). Options.Observer receives the same per request, with the
-// route and each row's plain score margin (ScoreMargin), and each model
+// route and each row's normalized margin (classify.Answer.Margin), and each model
 // change with its result and load time. examples/classify-server turns
 // these into Prometheus metrics; docs/serving.md describes them.
 //

@@ -258,6 +258,7 @@ type Answer struct {
 	Class         string    `json:"class,omitempty"`
 	ClassIndex    int       `json:"class_index"`
 	Scores        []float64 `json:"scores"`
+	Margin        float64   `json:"margin"`
 	Probabilities []float64 `json:"probabilities,omitempty"`
 	Set           []string  `json:"set,omitempty"`
 	NoAnswer      bool      `json:"no_answer,omitempty"`
@@ -457,7 +458,7 @@ func (h *Handler) classify(w *tracked, r *http.Request) {
 			return
 		}
 		resp.Answers[i] = Answer{Class: a.Label, ClassIndex: a.Class, Scores: append([]float64(nil), a.Scores...), FilledFields: filled,
-			Probabilities: append([]float64(nil), a.Probabilities...), NoAnswer: a.Abstained}
+			Margin: a.Margin, Probabilities: append([]float64(nil), a.Probabilities...), NoAnswer: a.Abstained}
 		for _, j := range a.Set {
 			name := strconv.Itoa(j)
 			if c := m.Classes(); c != nil {
@@ -466,7 +467,7 @@ func (h *Handler) classify(w *tracked, r *http.Request) {
 			resp.Answers[i].Set = append(resp.Answers[i].Set, name)
 		}
 		if observe {
-			w.margins = append(w.margins, ScoreMargin(a.Scores))
+			w.margins = append(w.margins, a.Margin)
 		}
 	}
 	for k := range ignored {
@@ -475,39 +476,6 @@ func (h *Handler) classify(w *tracked, r *http.Request) {
 	slices.Sort(resp.IgnoredFields)
 	w.rows = n
 	h.reply(w, http.StatusOK, resp)
-}
-
-// ScoreMargin is the plain score margin of one row's scores, the figure
-// that the Observer and the example server's margin histogram report:
-// the largest score minus the second largest for several outputs, and
-// |score| for the one output of a ±1 binary model. It is in the units of
-// the scores, not normalized by the network's scale: dividing it by the
-// product of the layers' weight norms gives the normalized margin of the
-// predicted class for a positively homogeneous network (ReLU layers, no
-// biases), which the serving side does not know. It is 0 for no scores.
-func ScoreMargin(scores []float64) float64 {
-	switch len(scores) {
-	case 0:
-		return 0
-	case 1:
-		if scores[0] < 0 {
-			return -scores[0]
-		}
-		return scores[0]
-	}
-	top, second := scores[0], scores[1]
-	if second > top {
-		top, second = second, top
-	}
-	for _, v := range scores[2:] {
-		switch {
-		case v > top:
-			top, second = v, top
-		case v > second:
-			second = v
-		}
-	}
-	return top - second
 }
 
 var errCellType = errors.New("a field's value must be a string, a number or null")

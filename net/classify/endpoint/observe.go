@@ -40,8 +40,8 @@ type RequestInfo struct {
 	// ModelVersion is the version of the model that answered, or "" when
 	// the request was refused before a model was chosen.
 	ModelVersion string
-	// Margins holds, for a 200 from POST /classify, the plain score
-	// margin of each row (ScoreMargin), in row order. The slice belongs
+	// Margins holds, for a 200 from POST /classify, the normalized
+	// margin of each row (classify.Answer.Margin), in row order. The slice belongs
 	// to the handler and is valid only during the call.
 	Margins []float64
 }
