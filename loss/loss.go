@@ -45,6 +45,13 @@ type Func[T Float] interface {
 // λ = 0) every ρ is a minimizer and RhoStar returns 0, the one of least
 // norm. RhoStar allocates nothing, and panics on the same shape mistakes as
 // Eval and on a negative λ.
+//
+// Quadratic returns the coefficients of the data term as a function of
+// the scale: mean_n ℓ(ρ·f_n, y_n) = c − 2a·ρ + b·ρ² for a constant c, so
+// that RhoStar = a/(b + λ). A trainer whose decay is not λρ² on one global
+// scale (a scale per layer, say) finds its own fixed point from a and b
+// (package optim).
 type Equilibrium[T Float] interface {
 	RhoStar(f, target []T, rows, cols int, lambda float64) float64
+	Quadratic(f, target []T, rows, cols int) (a, b float64)
 }

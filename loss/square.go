@@ -54,8 +54,15 @@ func (s Square[T]) Eval(out, target []T, rows, cols int, grad []T) float64 {
 // Σ_n ‖y_n − ρ f_n‖² + λ′ρ², is N times the objective above with λ′ = Nλ,
 // and has ρ* = Σ_n ⟨y_n, f_n⟩ / (Σ_n ‖f_n‖² + λ′). Pass λ′/N to convert.
 func (s Square[T]) RhoStar(f, target []T, rows, cols int, lambda float64) float64 {
-	checkShape(s.Name(), f, target, nil, rows, cols)
 	checkLambda(s.Name(), lambda)
+	a, b := s.Quadratic(f, target, rows, cols)
+	return vertex(a, b+lambda)
+}
+
+// Quadratic returns a = Σ_n ⟨y_n, f_n⟩/N and b = Σ_n ‖f_n‖²/N: the data
+// term is (1/N)Σ‖y_n‖² − 2aρ + bρ² (see Equilibrium).
+func (s Square[T]) Quadratic(f, target []T, rows, cols int) (a, b float64) {
+	checkShape(s.Name(), f, target, nil, rows, cols)
 	n := rows * cols
 	f, target = f[:n], target[:n]
 	var yf, ff float64
@@ -64,7 +71,7 @@ func (s Square[T]) RhoStar(f, target []T, rows, cols int, lambda float64) float6
 		yf += float64(target[i]) * fv
 		ff += fv * fv
 	}
-	return vertex(yf/float64(rows), ff/float64(rows)+lambda)
+	return yf / float64(rows), ff / float64(rows)
 }
 
 // vertex returns num/den, the minimizer of den·ρ² − 2·num·ρ, or 0 when den
@@ -164,8 +171,16 @@ func (r Rescaled[T]) Eval(out, target []T, rows, cols int, grad []T) float64 {
 //
 //	ρ* = (K·M·Σ_n f_{n,c_n} / (NC)) / (Σ_n [K f_{n,c_n}² + Σ_{i≠c_n} f_{n,i}²] / (NC) + λ).
 func (r Rescaled[T]) RhoStar(f, target []T, rows, cols int, lambda float64) float64 {
-	checkShape(r.Name(), f, target, nil, rows, cols)
 	checkLambda(r.Name(), lambda)
+	a, b := r.Quadratic(f, target, rows, cols)
+	return vertex(a, b+lambda)
+}
+
+// Quadratic returns a = K·M·Σ_n f_{n,c_n}/(NC) and b = Σ_n [K f_{n,c_n}² +
+// Σ_{i≠c_n} f_{n,i}²]/(NC), the coefficients of the data term in ρ (see
+// Equilibrium).
+func (r Rescaled[T]) Quadratic(f, target []T, rows, cols int) (a, b float64) {
+	checkShape(r.Name(), f, target, nil, rows, cols)
 	k, m := r.params()
 	var yf, ff float64
 	for row := range rows {
@@ -182,5 +197,5 @@ func (r Rescaled[T]) RhoStar(f, target []T, rows, cols int, lambda float64) floa
 		}
 	}
 	nc := float64(rows * cols)
-	return vertex(yf/nc, ff/nc+lambda)
+	return yf / nc, ff / nc
 }

@@ -269,6 +269,40 @@ func (w *Net[T]) Constrain() {
 	}
 }
 
+// LayerScales writes into dst, for each dense layer of the base network
+// in order, how the layer's norm ‖W_k‖_F moves under the gradient flow of
+// the trained parameters, as a code: −1 fixed (under a global scale, a
+// normalized layer other than the one that carries ρ: its direction is
+// held at unit norm); 0 free without decay; 1 free with weight decay λ on
+// its scale (a normalized layer's ρ_k, per layer or per unit, the global
+// ρ, or a plain layer's W with Decay). Under the flow every free layer's
+// norm obeys dρ_k/dt = −⟨G_k, W_k⟩/ρ_k − 2λ_kρ_k (for per-unit scales too,
+// since ρ_k² = Σ_i ρ_{k,i}²), which package optim turns into ρ̇ and ρ* of
+// the network. It returns dst, grown if needed.
+func (w *Net[T]) LayerScales(dst []int8) []int8 {
+	dst = dst[:0]
+	for i, l := range w.layers {
+		switch {
+		case l.v == nil:
+			dst = append(dst, boolCode(l.d.W.Decay))
+		case w.opts.Scale == Global && i != w.first:
+			dst = append(dst, -1)
+		case w.opts.Scale == Global:
+			dst = append(dst, boolCode(w.rho.Decay))
+		default:
+			dst = append(dst, boolCode(l.rho.Decay))
+		}
+	}
+	return dst
+}
+
+func boolCode(b bool) int8 {
+	if b {
+		return 1
+	}
+	return 0
+}
+
 // DirectionNorms writes into dst, for each dense layer of the base network
 // in order, the norm of its direction: ‖V_k‖_F for a normalized layer (the
 // root mean square of the row norms per unit), 1 for a plain one (whose

@@ -78,12 +78,18 @@ type StepInfo struct {
 	// under the flow. By Euler's theorem for homogeneous functions it is the
 	// same for every layer.
 	Nu []float64
-	// RhoDot is ρ̇ = −∂L/∂ρ for the factorization W = ρ·V at the current
-	// directions, with the objective Data + λρ²: ρ̇ = −⟨G_k, W_k⟩/ρ − 2λρ.
+	// RhoDot is dρ/dt of the network's scale ρ = ∏ρ_k under the gradient
+	// flow of the parameters actually trained, with their decay: ρ Σ_k
+	// (−E/ρ_k² − 2λ_k) over the layers whose norm is free, E = ⟨G_k, W_k⟩
+	// (optim/scales.go derives it for a plain network and for global,
+	// per-layer and per-unit scales). With one global scale it is the
+	// familiar −E/ρ − 2λρ.
 	RhoDot float64
 	// RhoStar is the equilibrium scale for the current directions, where
-	// ρ̇ = 0: defined for the square losses (loss.Equilibrium), NaN for
-	// others.
+	// dρ/dt = 0 in the mode trained (the function RhoStar): a/(b + λ) with
+	// one global scale, the largest root of a − bρ − λρ^{2/L−1} with L
+	// layers of free, decayed norm. Defined for the square losses
+	// (loss.Equilibrium), NaN for others.
 	RhoStar float64
 	// Margins summarizes the minibatch's normalized margins.
 	Margins Margins

@@ -124,6 +124,7 @@ type Trainer[T net.Float] struct {
 	// exact runs the noise-free steps (kept here so that handing them to
 	// the workers allocates nothing).
 	exact  ExactStep[T]
+	scales []int8 // layerScales, for the hooks
 	model  Model[T]
 	loss   loss.Func[T]
 	set    *data.Set[T]
@@ -589,7 +590,8 @@ func (t *Trainer[T]) observe(out, y []T, rows int, dataLoss, lr float64) {
 		}
 	}
 	// ⟨G_k, W_k⟩ is the same for every k (Euler); the readout's is used.
-	info.RhoDot = -gw/rho - 2*lambda*rho
+	t.scales = layerScales(t.model, t.scales[:0])
+	info.RhoDot = rhoRate(gw, rho, info.LayerRho, t.scales, lambda)
 
 	cols := t.set.Outputs
 	info.Margins = Margins{}
@@ -600,7 +602,8 @@ func (t *Trainer[T]) observe(out, y []T, rows int, dataLoss, lr float64) {
 		for i, v := range out[:rows*cols] {
 			f[i] = T(float64(v) / rho)
 		}
-		info.RhoStar = eq.RhoStar(f, y, rows, cols, lambda)
+		a, b := eq.Quadratic(f, y, rows, cols)
+		info.RhoStar = RhoStar(a, b, lambda, t.scales)
 	}
 
 	decay := 0.0
