@@ -19,7 +19,6 @@ package gauge_test
 
 import (
 	"context"
-	"fmt"
 	"math"
 	"testing"
 
@@ -513,7 +512,9 @@ func TestClaimSquareLossMinima(t *testing.T) {
 		// one-sided chance of a t₇ value above 3 under "no effect" is 1%
 		// (gonum stat/distuv.StudentsT{Nu: 7}.Survival(3) = 0.00997). 3 rather than
 		// the 5 of optim's Langevin tests because 8 seeds give a rough SE;
-		// at 5 the plain λ = 1e-2 case (4.98 SE) would fall short.
+		// at 5 the plain λ = 1e-2 case (4.98 SE) would fall short. The level
+		// has a derivation (1% one-sided under t₇), but it was settled after
+		// that case was measured: read it as a regression guard as well.
 		logRatio := func(a, b []claimRun) float64 { return math.Log(claimSpread(a) / claimSpread(b)) }
 		for _, normalized := range models {
 			base := runs[normalized][0]
@@ -524,14 +525,12 @@ func TestClaimSquareLossMinima(t *testing.T) {
 				t.Logf("%s, λ = %v: spread %.4g, ln(σ₀/σ_λ) = %.3g ± %.2g (%.1f SE), loss %.3g to %.3g",
 					name[normalized], lambda, claimSpread(rs), v, se, v/se, claimMinLoss(rs), claimMaxLoss(rs))
 				if lambda < 1e-3 {
-					// Found: not significant at this budget (see the
-					// table above); a skipped check that says so.
-					t.Run(fmt.Sprintf("%s λ=%v", name[normalized], lambda), func(t *testing.T) {
-						if !(v > 3*se) {
-							t.Skipf("found, against the claim: λ = %v does not bring the %s runs significantly closer within the budget (λ·ηt = %.2g): ln(σ₀/σ_λ) = %.3g ± %.2g, %.1f SE",
-								lambda, name[normalized], lambda*0.05*30_000, v, se, v/se)
-						}
-					})
+					// A measurement, not a check: at this budget the
+					// effect is not significant (the table above), and a
+					// check that could only pass or skip would prove
+					// nothing.
+					t.Logf("measured, not asserted: %s, λ = %v after λ·ηt = %.2g: ln(σ₀/σ_λ) = %.3g ± %.2g, %.1f SE",
+						name[normalized], lambda, lambda*0.05*30_000, v, se, v/se)
 					continue
 				}
 				if !(v > 3*se) {
