@@ -38,6 +38,14 @@ func (b *Builder[T]) Dense(name string, units int) *Builder[T] {
 	return b.Node(NewDense[T](name, units))
 }
 
+// BatchNorm appends batch normalization (see BatchNorm) with ε = 1e-5:
+// with a learned per-unit scale γ when scale is set, and a learned
+// per-unit shift β when shift is set. Without a shift the network stays
+// bias-free. Put it between a hidden dense layer and its activation.
+func (b *Builder[T]) BatchNorm(name string, scale, shift bool) *Builder[T] {
+	return b.Node(NewBatchNorm[T](name, BatchNormSettings{Scale: scale, Shift: shift}))
+}
+
 // ReLU appends a rectifier.
 func (b *Builder[T]) ReLU(name string) *Builder[T] { return b.Node(NewReLU[T](name)) }
 
@@ -117,6 +125,9 @@ func (b *Builder[T]) Build() (*Network[T], error) {
 		n.params = append(n.params, nd.Params()...)
 		if d, ok := nd.(*Dense[T]); ok {
 			n.dense = append(n.dense, d)
+		}
+		if r, ok := nd.(interface{ RunningStats() []*Running[T] }); ok {
+			n.running = append(n.running, r.RunningStats()...)
 		}
 	}
 	b.nodes = nil // the nodes now belong to the network

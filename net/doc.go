@@ -27,6 +27,11 @@
 // SmoothReLU and PolyReLU are activations for research into how much of the
 // behaviour depends on ReLU's exact shape; they are not homogeneous.
 //
+// BatchNorm (batch normalization) adds no bias unless asked, but it
+// subtracts a mean and divides out the scale of the layer before it, so
+// that layer's ρ_k no longer matters; it has a training and an inference
+// mode (Network.SetTraining) and running statistics (Network.Running).
+//
 // # Buffers and element types
 //
 // Batches are contiguous row-major slices, rows×width. The network owns the

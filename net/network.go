@@ -13,11 +13,12 @@ import (
 // sized for the largest batch seen and reused: after the first pass at a
 // given batch size, Forward and Backward allocate nothing.
 type Network[T Float] struct {
-	nodes  []Node[T]
-	widths []int // widths[i] is node i's input width; widths[len(nodes)] the output width
-	byName map[string]Node[T]
-	params []*Param[T]
-	dense  []*Dense[T]
+	nodes   []Node[T]
+	widths  []int // widths[i] is node i's input width; widths[len(nodes)] the output width
+	byName  map[string]Node[T]
+	params  []*Param[T]
+	dense   []*Dense[T]
+	running []*Running[T] // batch normalization's running statistics, in node order
 
 	capRows int
 	rows    int

@@ -27,6 +27,9 @@ func (n *Network[T]) Spec() ([]NodeSpec, error) {
 			s.Units = v.Out()
 		case *SmoothReLU[T]:
 			s.Sharpness = v.Sharpness()
+		case *BatchNorm[T]:
+			o := v.Settings()
+			s.Scale, s.Shift, s.Epsilon = o.Scale, o.Shift, o.Epsilon
 		case *PolyReLU[T]:
 			s.Degree = v.Degree()
 			s.Lo, s.Hi = v.Interval()
@@ -56,6 +59,8 @@ func FromSpec[T Float](inputs int, specs []NodeSpec) (*Network[T], error) {
 			b.ReLU(s.Name)
 		case schema.KindSmoothReLU:
 			b.SmoothReLU(s.Name, s.Sharpness)
+		case schema.KindBatchNorm:
+			b.Node(NewBatchNorm[T](s.Name, BatchNormSettings{Scale: s.Scale, Shift: s.Shift, Epsilon: s.Epsilon}))
 		case schema.KindPolyReLU:
 			fit, err := ParseFit(s.Fit)
 			if err != nil {

@@ -308,7 +308,9 @@ func (t *Trainer[T]) takeStep() error {
 	})
 	x, y, rows := t.nextBatch()
 	cols := t.set.Outputs
+	SetTraining(t.model, true) // batch statistics for this step's pass only (see mode.go)
 	out := t.model.Forward(x, rows)
+	SetTraining(t.model, false)
 	l := t.loss.Eval(out, y, rows, cols, t.gout[:rows*cols])
 	if math.IsNaN(l) || math.IsInf(l, 0) {
 		return &NonFiniteError{Step: t.step + 1, Epoch: t.epoch, What: "loss", Index: -1, Value: l}

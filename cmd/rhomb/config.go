@@ -45,6 +45,7 @@ type config struct {
 	Norm       string  `json:"norm"`
 	Hold       string  `json:"hold"`
 	Plain      bool    `json:"plain_readout,omitempty"`
+	BatchNorm  bool    `json:"batch_norm,omitempty"`
 	Float      int     `json:"float"`
 	// Training.
 	Loss     string  `json:"loss"`
@@ -171,6 +172,7 @@ func (c *config) bind(fs *flag.FlagSet) {
 	fs.StringVar(&c.Norm, "norm", c.Norm, "weight normalization: `none|layer|global|unit`")
 	fs.StringVar(&c.Hold, "hold", c.Hold, "how directions keep unit norm: `multiplier|projection`")
 	fs.BoolVar(&c.Plain, "plain-readout", c.Plain, "leave the readout layer out of weight normalization")
+	fs.BoolVar(&c.BatchNorm, "batchnorm", c.BatchNorm, "batch normalization after each hidden layer, before its activation, with a learned per-unit scale and no shift (running mean and variance for predictions); needs -norm none, since it makes a layer's weight scale irrelevant")
 	fs.IntVar(&c.Float, "float", c.Float, "arithmetic: `32|64` bits")
 	fs.StringVar(&c.Loss, "loss", c.Loss, "`square|rescaled:K:M|cross-entropy|logistic|exponential`")
 	fs.BoolVar(&c.Balance, "balance", c.Balance, "weight each class inversely to its frequency")
@@ -240,6 +242,12 @@ func (c *config) check() error {
 		return bad("train: -warmup %d: want 0 (none) or a number of epochs", c.Warmup)
 	case c.Patience < -1:
 		return bad("train: -patience %d: want -1 (never stop early), 0 (the default) or a number of epochs", c.Patience)
+	}
+	if c.BatchNorm && c.Norm != "none" {
+		// Batch normalization divides out the scale of the weights before
+		// it, so a weight-normalized scale ρ_k there would get no gradient
+		// from the data, only from the decay, and shrink towards 0.
+		return bad("train: -batchnorm needs -norm none: batch normalization makes the scale of each hidden layer's weights irrelevant, so weight normalization's scales would only shrink under -decay")
 	}
 	if _, err := recipe.ParseMetric(c.Metric); err != nil {
 		return bad("train: -metric: %v", err)
@@ -351,6 +359,9 @@ func buildNetwork[T net.Float](c *config, inputs, outputs int) (*net.Network[T],
 	for i, w := range c.Hidden {
 		id := fmt.Sprint(i + 1)
 		b.Dense("hidden"+id, w)
+		if c.BatchNorm {
+			b.BatchNorm("norm"+id, true, false)
+		}
 		switch {
 		case name == "relu" && len(args) == 0:
 			b.ReLU("relu" + id)
@@ -470,7 +481,8 @@ func (c *config) plan() (recipe.Plan, error) {
 	}
 	p := recipe.Plan{Hidden: c.Hidden, Rho0: c.Rho0, Batch: c.Batch, Momentum: c.Momentum, Decay: c.Decay,
 		LearningRate: c.LR, StepFactor: c.StepFactor, Warmup: c.Warmup, Epochs: c.Epochs, Patience: c.Patience,
-		Metric: m, Seed: c.Seed, Strict: c.Strict, Temperature: c.Temp, Nesterov: c.Nesterov, TargetLoss: c.Target}
+		Metric: m, Seed: c.Seed, Strict: c.Strict, Temperature: c.Temp, Nesterov: c.Nesterov, TargetLoss: c.Target,
+		BatchNorm: c.BatchNorm}
 	// Zero means "the default" to a Plan and "none" on the command line.
 	if c.Momentum == 0 {
 		p.Momentum = -1

@@ -1,6 +1,7 @@
 // Package arith is the arithmetic that a model's forward pass is made of,
 // written once: the rounding rule of a dense layer's sums, the smoothed
-// and polynomial rectifiers, and the fit of the polynomial. Training (the
+// and polynomial rectifiers, the fit of the polynomial, and batch
+// normalization's inference form (batchnorm.go). Training (the
 // layers of package net and the matrix kernels of internal/kern) and
 // serving (package net/classify, the server and the edge program) both
 // call it, so a model file gives the same bits in training and in serving

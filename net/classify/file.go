@@ -66,6 +66,9 @@ func Read(b []byte, source string) (*Model, error) {
 			l.loadWeights(f.ByName[s.Name+".W"], f.Data)
 		case schema.KindReLU:
 			l.kind = kindReLU
+		case schema.KindBatchNorm:
+			l.kind = kindBatchNorm
+			l.loadBatchNorm(f, s)
 		case schema.KindSmoothReLU:
 			l.kind = kindSmooth
 			l.beta = s.Sharpness
@@ -125,6 +128,45 @@ func Read(b []byte, source string) (*Model, error) {
 		}
 	}
 	return m, nil
+}
+
+// loadBatchNorm turns a batch-norm node's stored running statistics,
+// scale and shift (schema.Parse checked them) into the per-unit mean,
+// factor γ/√(var + ε) and shift of its inference form, widened exactly
+// from the file's element type and computed by internal/arith as the
+// training node computes them.
+func (l *layer) loadBatchNorm(f *schema.File, s schema.Node) {
+	n := l.in
+	read := func(name string) []float64 {
+		v := make([]float64, n)
+		t := f.ByName[name]
+		if t == nil {
+			return nil
+		}
+		for i := range v {
+			if t.DType == schema.Float32 {
+				v[i] = float64(math.Float32frombits(binary.LittleEndian.Uint32(f.Data[t.Offset+4*int64(i):])))
+			} else {
+				v[i] = math.Float64frombits(binary.LittleEndian.Uint64(f.Data[t.Offset+8*int64(i):]))
+			}
+		}
+		return v
+	}
+	l.bnMean = read(s.Name + ".mean")
+	variance := read(s.Name + ".var")
+	gamma, shift := read(s.Name+".scale"), read(s.Name+".shift")
+	l.bnFactor = make([]float64, n)
+	for j := range l.bnFactor {
+		g := 1.0
+		if gamma != nil {
+			g = gamma[j]
+		}
+		l.bnFactor[j] = arith.BatchNormFactor(g, variance[j], s.Epsilon)
+	}
+	l.bnShift = shift
+	if shift == nil {
+		l.bnShift = make([]float64, n)
+	}
 }
 
 // loadWeights copies a weight tensor out of the file in the file's own

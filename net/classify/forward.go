@@ -10,6 +10,9 @@ import (
 //
 //   - A dense layer's output j is arith.Dot of the row and W's row j, the
 //     rounding rule of every matrix product in training.
+//   - Batch normalization is arith.BatchNormRow with the stored running
+//     mean and the factor arith.BatchNormFactor of the stored variance and
+//     scale: the training node's inference mode calls the same two.
 //   - ReLU is max(x, 0); the smoothed ReLU is arith.SmoothReLU and the
 //     polynomial ReLU arith.Poly.Eval, both computed in float64 and
 //     rounded to the element type once, as the training layers do.
@@ -30,6 +33,7 @@ const (
 	kindReLU
 	kindSmooth
 	kindPoly
+	kindBatchNorm
 )
 
 type layer struct {
@@ -39,6 +43,8 @@ type layer struct {
 	w32     []float32   // dense: W in a float32 model
 	beta    float64     // smooth-relu
 	poly    *arith.Poly // poly-relu
+	// batch-norm, per unit: the running mean, γ/√(var + ε) and the shift
+	bnMean, bnFactor, bnShift []float64
 }
 
 // weights returns a dense layer's W in T.
@@ -82,6 +88,10 @@ func forward[T arith.Float](layers []layer, x, a, b []T) []T {
 			for k, u := range cur {
 				y[k] = T(arith.SmoothReLU(float64(u), bt))
 			}
+			cur, a, b = y, b, a
+		case kindBatchNorm:
+			y := a[:len(cur)]
+			arith.BatchNormRow(cur, y, l.bnMean, l.bnFactor, l.bnShift)
 			cur, a, b = y, b, a
 		case kindPoly:
 			y, p := a[:len(cur)], l.poly

@@ -28,6 +28,9 @@ type File struct {
 	// keeps them (package normalize's order for a normalized model, the
 	// dense layers' W otherwise), with their shapes.
 	Trainable []Param
+	// Running names the batch-norm nodes' running statistics (mean, then
+	// variance, per node in graph order), each 1×width.
+	Running   []Param
 	Data      []byte // the tensor data region
 	DataStart int64  // offset of Data in the file
 	ByName    map[string]*Tensor
@@ -46,11 +49,14 @@ type Param struct {
 // unknown field anywhere, format, dtype, inputs, the graph's size and
 // fitting cost); each node (a unique name, a known kind in its place,
 // its settings, a weight tensor of its shape and dtype for a dense
-// layer); the class names (as many as the outputs, none twice); the
+// layer; for a batch-norm node its ε, its scale and shift arrays as its
+// settings say and its running mean and variance, the variance ≥ 0); the
+// class names (as many as the outputs, none twice); the
 // pipeline (valid, as wide as the inputs); the normalized parameters
 // (exactly those the normalization makes, of their shapes, with W = ρ·V
-// bit for bit); the checkpoint's tensors (present exactly with a
-// checkpoint, one per trainable parameter or none); that every tensor has
+// bit for bit; no batch-norm node with a normalization); the
+// checkpoint's tensors (present exactly with a checkpoint, one per
+// trainable parameter or none; kept ones also one per running statistic); that every tensor has
 // a known role and belongs to the model; and that every floating-point
 // tensor holds finite numbers. The first problem is returned as an
 // *Error naming source and the byte offset.
@@ -208,6 +214,9 @@ func (p *parser) graph() error {
 		if s.Kind != KindPolyReLU && (s.Degree != 0 || s.Lo != 0 || s.Hi != 0 || s.Fit != "" || s.Coefficients != nil) {
 			return bad("degree, lo, hi, fit and coefficients belong to poly-relu nodes")
 		}
+		if s.Kind != KindBatchNorm && (s.Scale || s.Shift || s.Epsilon != 0) {
+			return bad("scale, shift and epsilon belong to batch-norm nodes")
+		}
 		out := width
 		switch s.Kind {
 		case KindConstantOne:
@@ -224,6 +233,10 @@ func (p *parser) graph() error {
 			}
 			out = s.Units
 		case KindReLU:
+		case KindBatchNorm:
+			if err := p.batchNorm(s, width); err != nil {
+				return err
+			}
 		case KindSmoothReLU:
 			var err error
 			if h.DType == Float32 {
@@ -256,6 +269,43 @@ func (p *parser) graph() error {
 		width = out
 	}
 	p.f.Outputs = width
+	return nil
+}
+
+// batchNorm checks a batch-norm node of the given width: a finite ε > 0,
+// its scale and shift arrays exactly as its settings say, and its running
+// mean and variance, the variance at least 0 (a unit whose values never
+// varied has variance 0; ε keeps the division finite). Finiteness is
+// checked with every other array (tensors).
+func (p *parser) batchNorm(s Node, width int) error {
+	h := &p.f.Header
+	if math.IsNaN(s.Epsilon) || math.IsInf(s.Epsilon, 0) || !(s.Epsilon > 0) {
+		return p.header(ErrShape, "node %q (%s): epsilon %v; want a finite number > 0 (1e-5 is usual)", s.Name, s.Kind, s.Epsilon)
+	}
+	for _, q := range []struct {
+		on   bool
+		name string
+	}{{s.Scale, s.Name + ".scale"}, {s.Shift, s.Name + ".shift"}} {
+		if q.on {
+			if _, err := p.use(q.name, RoleWeight, h.DType, 1, width); err != nil {
+				return err
+			}
+		}
+	}
+	for _, name := range []string{s.Name + ".mean", s.Name + ".var"} {
+		t, err := p.use(name, RoleRunning, h.DType, width)
+		if err != nil {
+			return err
+		}
+		p.f.Running = append(p.f.Running, Param{name, 1, width})
+		if name == s.Name+".var" {
+			for k := range width {
+				if v := p.value(t, k); !(v >= 0) {
+					return p.fail(p.f.DataStart+t.Offset, ErrShape, "tensor %q: value %d is %v; a variance must be a number ≥ 0", name, k, v)
+				}
+			}
+		}
+	}
 	return nil
 }
 
@@ -313,14 +363,32 @@ func (p *parser) normalization() error {
 		}
 	}
 	if n == nil {
-		for i, s := range dense {
+		// The network's own parameters, in node order: each dense
+		// layer's W, each batch-norm node's scale and shift.
+		for i, s := range h.Graph {
 			w := p.f.Widths[i]
-			p.f.Trainable = append(p.f.Trainable, Param{s.Name + ".W", w[1], w[0]})
+			switch {
+			case s.Kind == KindDense || s.Kind == KindReadout:
+				p.f.Trainable = append(p.f.Trainable, Param{s.Name + ".W", w[1], w[0]})
+			case s.Kind == KindBatchNorm:
+				if s.Scale {
+					p.f.Trainable = append(p.f.Trainable, Param{s.Name + ".scale", 1, w[0]})
+				}
+				if s.Shift {
+					p.f.Trainable = append(p.f.Trainable, Param{s.Name + ".shift", 1, w[0]})
+				}
+			}
 		}
 		return nil
 	}
 	bad := func(format string, args ...any) error {
 		return p.header(ErrHeader, "normalization: "+format, args...)
+	}
+	if len(p.f.Running) > 0 {
+		// Batch normalization makes a layer's output independent of the
+		// scale of the weights before it: a scale ρ_k of that layer would
+		// get no gradient from the data, only from the weight decay.
+		return bad("a weight-normalized model cannot have batch-norm nodes: they make a layer's scale irrelevant")
 	}
 	if n.Scale != ScalePerLayer && n.Scale != ScaleGlobal {
 		return bad("scale %q; want %q or %q", n.Scale, ScalePerLayer, ScaleGlobal)
@@ -433,8 +501,14 @@ func (p *parser) checkpoint() error {
 		if prefix == "kept/" {
 			role = RoleKept
 		}
+		// The best epoch's model is its parameters and its running
+		// statistics; momentum belongs to the parameters only.
+		arrays := p.f.Trainable
+		if role == RoleKept {
+			arrays = append(slices.Clip(arrays), p.f.Running...)
+		}
 		have := 0
-		for _, q := range p.f.Trainable {
+		for _, q := range arrays {
 			if p.f.ByName[prefix+q.Name] != nil {
 				have++
 			}
@@ -442,10 +516,13 @@ func (p *parser) checkpoint() error {
 		if have == 0 {
 			continue
 		}
-		if have != len(p.f.Trainable) {
+		if have != len(arrays) {
+			if extra := len(arrays) - len(p.f.Trainable); extra > 0 {
+				return p.header(ErrShape, "%d %s tensors for %d trainable parameters and %d running statistics; want one each or none", have, role, len(p.f.Trainable), extra)
+			}
 			return p.header(ErrShape, "%d %s tensors for %d trainable parameters; want one each or none", have, role, len(p.f.Trainable))
 		}
-		for _, q := range p.f.Trainable {
+		for _, q := range arrays {
 			if _, err := p.use(prefix+q.Name, role, Float64, q.Rows*q.Cols); err != nil {
 				return err
 			}
@@ -466,7 +543,7 @@ func (p *parser) tensors() error {
 		t := &p.f.Header.Tensors[i]
 		if !p.used[t.Name] {
 			switch t.Role {
-			case RoleWeight, RoleParam, RoleVelocity, RoleOrder, RoleKept:
+			case RoleWeight, RoleParam, RoleVelocity, RoleOrder, RoleKept, RoleRunning:
 				return p.header(ErrShape, "tensor %q (%s) belongs to no part of the model", t.Name, t.Role)
 			}
 			return p.header(ErrHeader, "tensor %q: unknown role %q", t.Name, t.Role)

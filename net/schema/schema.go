@@ -47,6 +47,7 @@ const (
 	KindReLU        = "relu"         // max(x, 0)
 	KindSmoothReLU  = "smooth-relu"  // log(1 + e^{βx})/β
 	KindPolyReLU    = "poly-relu"    // a Chebyshev fit of ReLU on [lo, hi]
+	KindBatchNorm   = "batch-norm"   // γ·(x − mean)/√(var + ε) + β per unit, with stored running statistics
 )
 
 // Polynomial fits: the "fit" of a poly-relu node.
@@ -68,7 +69,8 @@ const (
 	RoleParam    = "param"    // a trainable parameter of a normalized model (ρ or V)
 	RoleVelocity = "velocity" // a momentum buffer, in a checkpoint
 	RoleOrder    = "order"    // the batch order, in a checkpoint
-	RoleKept     = "kept"     // the best epoch's parameter, in a checkpoint
+	RoleKept     = "kept"     // the best epoch's parameter or running statistic, in a checkpoint
+	RoleRunning  = "running"  // a batch-norm node's running mean or variance: state, not a parameter
 )
 
 // Normalization scales and holds.
@@ -185,6 +187,13 @@ type Node struct {
 	// and serving) and refuse a file whose coefficients differ from the
 	// fit.
 	Coefficients []float64 `json:"coefficients,omitempty"`
+	// Scale, Shift and Epsilon describe a batch-norm node: whether it
+	// has a learned per-unit scale γ (array "<name>.scale") and shift β
+	// ("<name>.shift"), and the ε added to the variance. Its running
+	// mean and variance are the arrays "<name>.mean" and "<name>.var".
+	Scale   bool    `json:"scale,omitempty"`
+	Shift   bool    `json:"shift,omitempty"`
+	Epsilon float64 `json:"epsilon,omitempty"`
 }
 
 // Normalization records how a normalized model splits its layers into a

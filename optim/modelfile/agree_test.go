@@ -17,8 +17,9 @@ import (
 )
 
 // agreeSeeds are model files of every shape the writer makes: plain and
-// normalized (per layer, per unit, global, skipping the readout), float32
-// and float64, with and without a checkpoint.
+// normalized (per layer, per unit, global, skipping the readout), with
+// batch normalization, float32 and float64, with and without a
+// checkpoint.
 func agreeSeeds(t testing.TB) [][]byte {
 	var out [][]byte
 	for _, o := range []*normalize.Options{nil, {}, {PerUnit: true}, {Scale: normalize.Global}, {SkipReadout: true, Hold: normalize.Projection}} {
@@ -38,6 +39,15 @@ func agreeSeeds(t testing.TB) [][]byte {
 		}
 		out = append(out, encode(t, m32))
 	}
+	// Batch normalization, with running statistics moved by training, in
+	// both element types.
+	bn := trained(t, bnNetwork[float64](t, 6))
+	out = append(out, encode(t, &modelfile.Model[float64]{Network: bn}))
+	bn32, err := modelfile.Read[float32](out[len(out)-1], "seed")
+	if err != nil {
+		t.Fatal(err)
+	}
+	out = append(out, encode(t, bn32))
 	// A checkpoint: a few steps of training leave momentum buffers and a
 	// batch order.
 	n := network[float64](t, 5)
@@ -55,6 +65,25 @@ func agreeSeeds(t testing.TB) [][]byte {
 	}
 	st := tr.State()
 	out = append(out, encode(t, &modelfile.Model[float64]{Network: n, Normalized: w, Checkpoint: &st, Kept: kept(w)}))
+	// A checkpoint of a batch-normalized network that keeps its best
+	// epoch: kept parameters and running statistics.
+	nb := bnNetwork[float64](t, 7)
+	tb, err := optim.NewTrainer[float64](nb, loss.Square[float64]{}, set, optim.Settings{LearningRate: 0.01, Momentum: 0.9, BatchSize: 5, Epochs: 1, Seed: 1})
+	if err != nil {
+		t.Fatal(err)
+	}
+	if _, err := tb.Run(context.Background()); err != nil {
+		t.Fatal(err)
+	}
+	stb := tb.State()
+	var kb [][]float64
+	for _, p := range nb.Params() {
+		kb = append(kb, widen(p.Value))
+	}
+	for _, r := range nb.Running() {
+		kb = append(kb, widen(r.Value))
+	}
+	out = append(out, encode(t, &modelfile.Model[float64]{Network: nb, Checkpoint: &stb, Kept: kb}))
 	return out
 }
 

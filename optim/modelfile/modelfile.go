@@ -48,7 +48,9 @@ type Model[T net.Float] struct {
 	// Session and Kept belong to a checkpoint of a training procedure that
 	// keeps the best epoch (package optim/recipe): its own record, kept as
 	// it is, and the best epoch's trainable parameters in Params order,
-	// widened to float64. Both are written only with a Checkpoint.
+	// followed by its running statistics in Network.Running order (batch
+	// normalization; none without), widened to float64. Both are written
+	// only with a Checkpoint.
 	Session json.RawMessage
 	Kept    [][]float64
 	// Decision is how a served model turns scores into answers
@@ -94,6 +96,9 @@ func encode[T net.Float](m *Model[T]) ([]byte, error) {
 		if m.Normalized.Base() != m.Network {
 			return nil, fmt.Errorf("modelfile: Write: Normalized wraps a different network than Network")
 		}
+		if len(m.Network.Running()) > 0 {
+			return nil, fmt.Errorf("modelfile: Write: a weight-normalized model cannot have batch-norm nodes (they make a layer's scale irrelevant); train it without weight normalization")
+		}
 		m.Normalized.Sync()
 	}
 	specs, err := m.Network.Spec()
@@ -122,6 +127,10 @@ func encode[T net.Float](m *Model[T]) ([]byte, error) {
 	}
 	for _, p := range m.Network.Params() {
 		add(p.Name, schema.RoleWeight, h.DType, []int{p.Rows, p.Cols}, func(b *bytes.Buffer) { putFloats(b, p.Value) })
+	}
+	running := m.Network.Running()
+	for _, r := range running {
+		add(r.Name, schema.RoleRunning, h.DType, []int{len(r.Value)}, func(b *bytes.Buffer) { putFloats(b, r.Value) })
 	}
 	if n := m.Normalized; n != nil {
 		o := n.Options()
@@ -152,14 +161,20 @@ func encode[T net.Float](m *Model[T]) ([]byte, error) {
 		for i, v := range c.Velocity {
 			add("velocity/"+params[i].Name, schema.RoleVelocity, schema.Float64, []int{len(v)}, func(b *bytes.Buffer) { putFloats(b, v) })
 		}
-		if m.Kept != nil && len(m.Kept) != len(params) {
-			return nil, fmt.Errorf("modelfile: Write: checkpoint keeps %d parameters for %d", len(m.Kept), len(params))
+		if m.Kept != nil && len(m.Kept) != len(params)+len(running) {
+			return nil, fmt.Errorf("modelfile: Write: checkpoint keeps %d arrays for %d parameters and %d running statistics", len(m.Kept), len(params), len(running))
 		}
 		for i, v := range m.Kept {
-			if len(v) != len(params[i].Value) {
-				return nil, fmt.Errorf("modelfile: Write: kept parameter %s has %d values for %d", params[i].Name, len(v), len(params[i].Value))
+			name, want := "", 0
+			if i < len(params) {
+				name, want = params[i].Name, len(params[i].Value)
+			} else {
+				name, want = running[i-len(params)].Name, len(running[i-len(params)].Value)
 			}
-			add("kept/"+params[i].Name, schema.RoleKept, schema.Float64, []int{len(v)}, func(b *bytes.Buffer) { putFloats(b, v) })
+			if len(v) != want {
+				return nil, fmt.Errorf("modelfile: Write: kept array %s has %d values for %d", name, len(v), want)
+			}
+			add("kept/"+name, schema.RoleKept, schema.Float64, []int{len(v)}, func(b *bytes.Buffer) { putFloats(b, v) })
 		}
 		h.Checkpoint.Session = m.Session
 		if len(c.Order) > math.MaxInt32 {

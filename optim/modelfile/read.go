@@ -67,6 +67,11 @@ func Read[T net.Float](b []byte, source string) (*Model[T], error) {
 			return fail(schema.ErrShape, "%v", err)
 		}
 	}
+	for _, r := range n.Running() {
+		if err := floats(r.Name, r.Value); err != nil {
+			return fail(schema.ErrShape, "%v", err)
+		}
+	}
 	m := &Model[T]{Network: n, Pipeline: f.Pipeline, Classes: h.Classes, Label: h.Label, Loss: h.Loss, Training: h.Training, Metrics: h.Metrics, Library: h.Library, Decision: h.Decision}
 	if h.Created != "" {
 		m.Created, _ = time.Parse(time.RFC3339, h.Created)
@@ -119,6 +124,13 @@ func Read[T net.Float](b []byte, source string) (*Model[T], error) {
 			}
 			if t := f.ByName["kept/"+p.Name]; t != nil {
 				m.Kept = append(m.Kept, wide(t))
+			}
+		}
+		if m.Kept != nil {
+			// schema.Parse checked that a checkpoint that keeps the
+			// parameters keeps the running statistics too.
+			for _, r := range n.Running() {
+				m.Kept = append(m.Kept, wide(f.ByName["kept/"+r.Name]))
 			}
 		}
 		m.Session = c.Session

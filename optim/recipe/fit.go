@@ -19,7 +19,8 @@ import (
 
 // Build makes the network a plan describes for the given numbers of
 // input features and outputs: a constant-1 feature in place of biases,
-// the hidden dense layers each followed by ReLU, and the readout,
+// the hidden dense layers each followed by ReLU (with Plan.BatchNorm, by
+// batch normalization "norm<i>" and then ReLU), and the readout,
 // initialized He-normal with scale ρ0 and wrapped in the plan's weight
 // normalization (nil for Plain).
 func Build[T net.Float](p Plan, features, outputs int) (*net.Network[T], *normalize.Net[T], error) {
@@ -30,7 +31,11 @@ func Build[T net.Float](p Plan, features, outputs int) (*net.Network[T], *normal
 	b := net.NewBuilder[T](features).ConstantFeature("one")
 	for i, w := range p.Hidden {
 		id := fmt.Sprint(i + 1)
-		b.Dense("hidden"+id, w).ReLU("relu" + id)
+		b.Dense("hidden"+id, w)
+		if p.BatchNorm {
+			b.BatchNorm("norm"+id, true, false)
+		}
+		b.ReLU("relu" + id)
 	}
 	n, err := b.Readout("readout", outputs).Build()
 	if err != nil {

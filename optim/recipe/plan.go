@@ -92,6 +92,11 @@ type Plan struct {
 	Rho0 float64
 	// Norm is the weight normalization.
 	Norm Norm
+	// BatchNorm puts batch normalization with a learned per-unit scale
+	// (no shift) after each hidden dense layer, before its ReLU. It needs
+	// Norm = Plain: it makes a layer's output independent of the scale of
+	// its weights, so a weight-normalized scale would get no gradient.
+	BatchNorm bool
 	// Batch is the rows per step; zero means the default, and a batch
 	// larger than the training set is the whole set.
 	Batch int
@@ -144,6 +149,11 @@ type Plan struct {
 	// Strict makes a degenerate model an error (ErrDegenerate) instead of
 	// a warning.
 	Strict bool
+
+	// resolved marks a plan whose defaults are filled in: a 0 in it then
+	// means "none" (a negative field resolved), not "the default", so
+	// filling it again must change nothing.
+	resolved bool
 }
 
 // Defaults returns the plan that Plan{} means, every field filled in.
@@ -194,6 +204,9 @@ func (p Plan) Resolved(trainRows int) Plan { return p.forRows(trainRows).filled(
 // forRows sets a zero Epochs and Patience for a training set of the given
 // rows: the defaults, stretched to MinSteps and PatienceSteps steps.
 func (p Plan) forRows(rows int) Plan {
+	if p.resolved {
+		return p
+	}
 	d := Defaults()
 	batch := p.Batch
 	if batch == 0 {
@@ -215,6 +228,9 @@ func (p Plan) forRows(rows int) Plan {
 
 // filled returns p with every zero field set to its default.
 func (p Plan) filled() Plan {
+	if p.resolved {
+		return p
+	}
 	d := Defaults()
 	if p.Hidden == nil {
 		p.Hidden = d.Hidden
@@ -256,6 +272,7 @@ func (p Plan) filled() Plan {
 	}
 	seti(&p.Patience, d.Patience)
 	seti(&p.Restarts, d.Restarts)
+	p.resolved = true
 	return p
 }
 
@@ -275,6 +292,8 @@ func (p Plan) check() error {
 		return bad("Rho0", p.Rho0, "want a positive initial scale")
 	case p.Norm < PerLayer || p.Norm > Plain:
 		return bad("Norm", p.Norm, "want PerLayer, Global, PerUnit or Plain")
+	case p.BatchNorm && p.Norm != Plain:
+		return bad("Norm", p.Norm, "want Plain with BatchNorm: batch normalization makes a layer's scale irrelevant")
 	case p.Batch < 1:
 		return bad("Batch", p.Batch, "want a positive number of rows")
 	case !(p.Momentum < 1) || !finite(p.Momentum):

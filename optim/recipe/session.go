@@ -170,6 +170,11 @@ type Session[T net.Float] struct {
 	tr         *optim.Trainer[T]
 	rate       *rate
 
+	// live are the arrays a session keeps and puts back: the model's
+	// parameters, in Params order, then its network's running statistics
+	// (batch normalization), which are not parameters but belong to the
+	// same epoch's model. best and good hold copies of them.
+	live      [][]T
 	best      [][]T
 	out       Outcome
 	since     int     // epochs since the best
@@ -233,7 +238,13 @@ func NewSession[T net.Float](model optim.Model[T], lf loss.Func[T], train, val *
 	}
 	s.tr = tr
 	for _, p := range model.Params() {
-		s.best = append(s.best, make([]T, len(p.Value)))
+		s.live = append(s.live, p.Value)
+	}
+	for _, r := range model.Base().Running() {
+		s.live = append(s.live, r.Value)
+	}
+	for _, v := range s.live {
+		s.best = append(s.best, make([]T, len(v)))
 	}
 	return s, nil
 }
@@ -413,12 +424,12 @@ func (s *Session[T]) remeasure(when string) error {
 // boundary (or the start).
 func (s *Session[T]) keepGood() {
 	if s.good == nil {
-		for _, p := range s.model.Params() {
-			s.good = append(s.good, make([]T, len(p.Value)))
+		for _, v := range s.live {
+			s.good = append(s.good, make([]T, len(v)))
 		}
 	}
-	for i, p := range s.model.Params() {
-		copy(s.good[i], p.Value)
+	for i, v := range s.live {
+		copy(s.good[i], v)
 	}
 	s.goodState = s.tr.State()
 }
@@ -426,17 +437,26 @@ func (s *Session[T]) keepGood() {
 // rollBack returns the weights and the trainer to the last epoch
 // boundary.
 func (s *Session[T]) rollBack() error {
-	optim.SetParams(s.model, s.good)
+	s.put(s.good)
 	return s.tr.Restore(s.goodState)
 }
 
 func (s *Session[T]) keepBest() {
-	for i, p := range s.model.Params() {
-		copy(s.best[i], p.Value)
+	for i, v := range s.live {
+		copy(s.best[i], v)
 	}
 }
 
-func (s *Session[T]) restoreBest() { optim.SetParams(s.model, s.best) }
+func (s *Session[T]) restoreBest() { s.put(s.best) }
+
+// put copies saved values into the live arrays and brings the model's
+// derived weights up to date.
+func (s *Session[T]) put(saved [][]T) {
+	for i, v := range s.live {
+		copy(v, saved[i])
+	}
+	optim.Resync(s.model)
+}
 
 // score measures the validation rows with forward passes only.
 func (s *Session[T]) score(epoch int, rate float64) Score {
@@ -448,8 +468,20 @@ func (s *Session[T]) score(epoch int, rate float64) Score {
 }
 
 // sharpness measures the largest curvature of the objective on the probe
-// rows.
+// rows. A network with batch normalization is measured in training mode,
+// normalized by the probe rows' own statistics as the steps are by their
+// batch's, with its running statistics held: the curvature of the
+// objective the steps descend, not of the inference-mode function, whose
+// running statistics (at first 0 and 1) say nothing of the weights'
+// scale.
 func (s *Session[T]) sharpness() (float64, error) {
+	base := s.model.Base()
+	base.HoldRunning(true)
+	optim.SetTraining(s.model, true)
+	defer func() {
+		optim.SetTraining(s.model, false)
+		base.HoldRunning(false)
+	}()
 	est, err := optim.Sharpness(s.model, s.lf, s.probe.X, s.probe.Y, s.probe.Rows, optim.SharpnessSettings{WeightDecay: s.plan.Decay, Seed: s.plan.Seed})
 	if err != nil {
 		return 0, fmt.Errorf("recipe: measuring the step size: %w", err)
@@ -535,8 +567,10 @@ type SessionState struct {
 	Rollbacks int
 	Cap       float64
 	History   []Score
-	// Kept holds the best epoch's parameters, in Params order, widened to
-	// float64 (exact for float32); nil before the first scored epoch.
+	// Kept holds the best epoch's parameters, in Params order, then its
+	// running statistics (batch normalization, in the network's Running
+	// order), widened to float64 (exact for float32); nil before the first
+	// scored epoch.
 	Kept [][]float64
 }
 
@@ -560,7 +594,7 @@ func (s *Session[T]) State() SessionState {
 // of a session with the same model, data and plan.
 func (s *Session[T]) Restore(st SessionState, tr optim.State) error {
 	if st.Kept != nil && len(st.Kept) != len(s.best) {
-		return fmt.Errorf("recipe: the checkpoint keeps %d parameters, the model has %d", len(st.Kept), len(s.best))
+		return fmt.Errorf("recipe: the checkpoint keeps %d arrays, the model has %d (parameters and running statistics)", len(st.Kept), len(s.best))
 	}
 	for i, w := range st.Kept {
 		if len(w) != len(s.best[i]) {

@@ -56,12 +56,14 @@
 //	                    N×1, and Concat it after the features
 //	dense, readout      MatMul(x, Wᵀ), Wᵀ an in×out initializer
 //	relu                Relu
+//	batch-norm          BatchNormalization (inference: the running mean
+//	                    and variance, γ or ones, β or zeros, epsilon)
 //	smooth-relu         Mul(β), Softplus, Div(β); Softplus alone for β = 1
 //	poly-relu           Sub, Mul to t = (x − mid)·scale, then Clenshaw's
 //	                    recurrence in Mul, Add and Sub, three per degree
 //
 // Operator versions (each the newest at or below opset 17; from memory):
-// MatMul 13, Relu 14, Softplus 1, Add/Sub/Mul/Div 14, Concat 13, Shape 15,
+// MatMul 13, Relu 14, BatchNormalization 15, Softplus 1, Add/Sub/Mul/Div 14, Concat 13, Shape 15,
 // Expand 13, Gather 13, LpNormalization 1, IsNaN 13, Where 16, ArgMax 13,
 // Greater 13, Cast 13, Reshape 14.
 //
@@ -74,8 +76,9 @@
 // Marshal returns an *Error wrapping ErrUnsupported, naming the node, for:
 //
 //   - a node of the caller's own kind (only the kinds above are known);
-//   - a weight, sharpness, interval or Chebyshev coefficient that is NaN
-//     or does not fit in float32 (|v| > 3.4e38), and a pipeline mean,
+//   - a weight, sharpness, interval, Chebyshev coefficient or
+//     batch-norm statistic that is NaN or does not fit in float32
+//     (|v| > 3.4e38), and a pipeline mean,
 //     scale or fill likewise;
 //   - a pipeline whose width differs from the network's input (an *Error
 //     of kind "pipeline").

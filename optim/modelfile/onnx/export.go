@@ -130,6 +130,10 @@ func Marshal[T net.Float](m *modelfile.Model[T], o Options) ([]byte, error) {
 			g.op("MatMul", out, []string{cur, w}, out)
 		case *net.ReLU[T]:
 			g.op("Relu", out, []string{cur}, out)
+		case *net.BatchNorm[T]:
+			if err := batchNorm(g, cur, out, v); err != nil {
+				return nil, fail(err)
+			}
 		case *net.SmoothReLU[T]:
 			if err := g.smoothReLU(cur, out, v.Sharpness()); err != nil {
 				return nil, fail(err)
@@ -161,7 +165,7 @@ func escape(name string) string {
 }
 
 // exportable lists the node kinds Marshal handles, for error messages.
-var exportable = []string{schema.KindConstantOne, schema.KindDense, schema.KindReadout, schema.KindReLU, schema.KindSmoothReLU, schema.KindPolyReLU}
+var exportable = []string{schema.KindConstantOne, schema.KindDense, schema.KindReadout, schema.KindReLU, schema.KindBatchNorm, schema.KindSmoothReLU, schema.KindPolyReLU}
 
 // graph collects the pieces of a GraphProto.
 type graph struct {
@@ -266,6 +270,46 @@ func (g *graph) constantOne(cur, out string) {
 	ones := out + "/ones"
 	g.op("Expand", out, []string{one, shape}, ones)
 	g.op("Concat", out, []string{cur, ones}, out, attrInt("axis", 1))
+}
+
+// batchNorm writes the node's inference form as the standard
+// BatchNormalization operator (training_mode 0, its default): inputs X,
+// scale (γ, or ones), B (β, or zeros), input_mean and input_var (the
+// running statistics), attribute epsilon; every value rounded to float32.
+// The operator takes X as N×C (ONNX Operators.md: N × C × D1 … Dn, n ≥ 0).
+func batchNorm[T net.Float](g *graph, cur, out string, b *net.BatchNorm[T]) error {
+	w := b.Width()
+	ones := make([]T, w)
+	for i := range ones {
+		ones[i] = 1
+	}
+	scale, shift := ones, make([]T, w)
+	if b.Scale != nil {
+		scale = b.Scale.Value
+	}
+	if b.Shift != nil {
+		shift = b.Shift.Value
+	}
+	var names [4]string
+	for k, part := range []struct {
+		name string
+		v    []T
+	}{{"scale", scale}, {"shift", shift}, {"mean", b.Mean.Value}, {"var", b.Var.Value}} {
+		f := make([]float32, w)
+		for j, v := range part.v {
+			var err error
+			if f[j], err = to32(float64(v)); err != nil {
+				return fmt.Errorf("%s of unit %d: %w", part.name, j, err)
+			}
+		}
+		names[k] = g.initF32(out+"/"+part.name, []int64{int64(w)}, f)
+	}
+	eps, err := to32(b.Settings().Epsilon)
+	if err != nil || eps <= 0 {
+		return fmt.Errorf("%w: epsilon %v is not a positive float32", ErrUnsupported, b.Settings().Epsilon)
+	}
+	g.op("BatchNormalization", out, []string{cur, names[0], names[1], names[2], names[3]}, out, attrFloat("epsilon", eps))
+	return nil
 }
 
 // smoothReLU writes log(1 + exp(βx))/β as Softplus(x·β)/β; for β = 1 the

@@ -93,7 +93,8 @@ func strs(fs []field, num protowire.Number) []string {
 type dNode struct {
 	op      string
 	in, out []string
-	attrs   map[string]int64 // the INT attributes
+	attrs   map[string]int64   // the INT attributes
+	floats  map[string]float32 // the FLOAT attributes
 }
 
 type dTensor struct {
@@ -140,7 +141,7 @@ type dModel struct {
 // graph 7, opset_import 8, metadata_props 14; OperatorSetIdProto domain 1,
 // version 2; GraphProto node 1, initializer 5, input 11, output 12;
 // NodeProto input 1, output 2, op_type 4, attribute 5; AttributeProto
-// name 1, i 3, type 20 (INT = 2); TensorProto dims 1, data_type 2, name 8,
+// name 1, f 2 (fixed32), i 3, type 20 (FLOAT = 1, INT = 2); TensorProto dims 1, data_type 2, name 8,
 // raw_data 9; ValueInfoProto name 1, type 2; TypeProto tensor_type 1;
 // TypeProto.Tensor elem_type 1, shape 2; TensorShapeProto dim 1;
 // Dimension dim_value 1, dim_param 2; StringStringEntryProto key 1,
@@ -166,13 +167,21 @@ func decodeModel(t *testing.T, b []byte) dModel {
 	g := decode(t, one(t, top, 7).b)
 	for _, nf := range all(g, 1) {
 		fs := decode(t, nf.b)
-		nd := dNode{op: string(one(t, fs, 4).b), in: strs(fs, 1), out: strs(fs, 2), attrs: map[string]int64{}}
+		nd := dNode{op: string(one(t, fs, 4).b), in: strs(fs, 1), out: strs(fs, 2), attrs: map[string]int64{}, floats: map[string]float32{}}
 		for _, af := range all(fs, 5) {
 			a := decode(t, af.b)
-			if typ := one(t, a, 20).v; typ != 2 {
-				t.Fatalf("%s: attribute of type %d; the export writes INT (2) only", nd.op, typ)
+			switch typ := one(t, a, 20).v; typ {
+			case 2:
+				nd.attrs[string(one(t, a, 1).b)] = int64(one(t, a, 3).v)
+			case 1:
+				f := one(t, a, 2)
+				if f.typ != protowire.Fixed32Type {
+					t.Fatalf("%s: FLOAT attribute with wire type %d, want fixed32", nd.op, f.typ)
+				}
+				nd.floats[string(one(t, a, 1).b)] = math.Float32frombits(uint32(f.v))
+			default:
+				t.Fatalf("%s: attribute of type %d; the export writes INT (2) and FLOAT (1) only", nd.op, typ)
 			}
-			nd.attrs[string(one(t, a, 1).b)] = int64(one(t, a, 3).v)
 		}
 		m.nodes = append(m.nodes, nd)
 	}
@@ -391,6 +400,10 @@ func TestStructureVariants(t *testing.T) {
 			[]string{"MatMul", "Softplus", "MatMul"}},
 		// Degree 3: t, 2t, then b_2 = c_2 + 2t·c_3 (Mul, Add), b_1 = c_1 +
 		// 2t·b_2 − c_3 (Mul, Add, Sub), p = c_0 + t·b_1 − b_2 (Mul, Add, Sub).
+		{"batch-norm", func(b *net.Builder[float64]) {
+			b.Dense("h", 4).BatchNorm("n", true, false).ReLU("r").Readout("out", 2)
+		}, Options{FeatureInput: true, ScoresOnly: true}, p,
+			[]string{"MatMul", "BatchNormalization", "Relu", "MatMul"}},
 		{"poly", func(b *net.Builder[float64]) { b.PolyReLU("p", 3, -2, 2, net.FitInterpolation).Readout("out", 2) }, Options{ScoresOnly: true}, nil,
 			[]string{"Sub", "Mul", "Mul", "Mul", "Add", "Mul", "Add", "Sub", "Mul", "Add", "Sub", "MatMul"}},
 	} {
@@ -406,6 +419,63 @@ func TestStructureVariants(t *testing.T) {
 				t.Errorf("ops %v\nwant %v", got, c.ops)
 			}
 		})
+	}
+}
+
+// TestBatchNormExport checks the BatchNormalization node of an export
+// against the network's batch-norm node: its five inputs in the order of
+// the operator's definition (X, scale, B, input_mean, input_var; ONNX
+// Operators.md, BatchNormalization; from memory), initializers of one
+// value per unit — γ or ones, β or zeros, the running mean and variance,
+// each the float32 rounding of the node's — and epsilon as a FLOAT
+// attribute, with no training_mode attribute (its default 0 is inference).
+func TestBatchNormExport(t *testing.T) {
+	for _, st := range [][2]bool{{true, false}, {false, true}} {
+		n := build[float64](t, 3, 2, func(b *net.Builder[float64]) {
+			b.Dense("h", 4).BatchNorm("n", st[0], st[1]).ReLU("r").Readout("out", 2)
+		})
+		bn := n.Node("n").(*net.BatchNorm[float64])
+		for j := range 4 {
+			bn.Mean.Value[j], bn.Var.Value[j] = 0.1*float64(j)-0.15, 0.7+0.3*float64(j)
+			if bn.Scale != nil {
+				bn.Scale.Value[j] = 1.1 - 0.2*float64(j)
+			}
+			if bn.Shift != nil {
+				bn.Shift.Value[j] = 0.05 * float64(j)
+			}
+		}
+		b, err := Marshal(&modelfile.Model[float64]{Network: n}, Options{ScoresOnly: true})
+		if err != nil {
+			t.Fatal(err)
+		}
+		m := decodeModel(t, b)
+		checkTopological(t, m)
+		nd := m.nodes[1]
+		if nd.op != "BatchNormalization" || len(nd.in) != 5 || nd.in[0] != "node/h" || nd.out[0] != "node/n" {
+			t.Fatalf("node %+v", nd)
+		}
+		if len(nd.attrs) != 0 || len(nd.floats) != 1 || nd.floats["epsilon"] != float32(1e-5) {
+			t.Errorf("attributes %v %v, want only epsilon = %v", nd.attrs, nd.floats, float32(1e-5))
+		}
+		want := [4][]float64{{1, 1, 1, 1}, {0, 0, 0, 0}, bn.Mean.Value, bn.Var.Value}
+		if bn.Scale != nil {
+			want[0] = bn.Scale.Value
+		}
+		if bn.Shift != nil {
+			want[1] = bn.Shift.Value
+		}
+		for k, in := range nd.in[1:] {
+			init := m.inits[in]
+			got := init.floats()
+			if !slices.Equal(init.dims, []int64{4}) || init.dtype != 1 || len(got) != 4 {
+				t.Fatalf("input %d (%s): dims %v type %d", k+1, in, init.dims, init.dtype)
+			}
+			for j, v := range want[k] {
+				if got[j] != float32(v) {
+					t.Errorf("input %d (%s) unit %d: %v, want float32 of %v", k+1, in, j, got[j], v)
+				}
+			}
+		}
 	}
 }
 

@@ -17,8 +17,10 @@ import (
 
 	"github.com/rhomb/rhomb/data"
 	"github.com/rhomb/rhomb/data/prep"
+	"github.com/rhomb/rhomb/loss"
 	"github.com/rhomb/rhomb/net"
 	"github.com/rhomb/rhomb/normalize"
+	"github.com/rhomb/rhomb/optim"
 	"github.com/rhomb/rhomb/optim/modelfile"
 )
 
@@ -246,6 +248,10 @@ func (s *shadow) node(t *testing.T, nd any, uR float64) {
 		for i, z := range s.a {
 			s.a[i] = max(z, 0) // 1-Lipschitz and exact: e passes unchanged
 		}
+	case *net.BatchNorm[float32]:
+		batchNormBound(s, v, uR, false)
+	case *net.BatchNorm[float64]:
+		batchNormBound(s, v, uR, true)
 	case *net.SmoothReLU[float32]:
 		s.smooth(v.Sharpness(), uR)
 	case *net.SmoothReLU[float64]:
@@ -283,6 +289,39 @@ func dense[T net.Float](s *shadow, w []T, out, in int, uR float64, wRounded bool
 		z[r], ez[r] = sum, prop+k*abs
 	}
 	s.a, s.e = z, ez
+}
+
+// batchNormBound: y = (z − m)·a + β with a = γ/√(v + ε), the stored
+// running statistics. Propagated: |a|·e. rhomb computes in float64
+// (a few roundings of u64 on |a(z − m)| and |β|) and rounds y to T once,
+// uR|y|. The runtime may compute the operator's definition as written or
+// fold it into z·a' + b' with b' = β − m·a' (an implementation's choice;
+// the operator's definition does not say): either way, a first-order bound
+// is 6·u32·(|a||z| + |a||m| + |β|) for its few float32 operations on
+// magnitudes up to those (an assumption about the runtime, like the one
+// on Softplus, not a published figure). When the weights are float64
+// they reach the runtime rounded to float32: m by u32|m| (moving y by
+// |a|·u32|m|), γ by u32|γ| and v by u32·v, which move a by at most
+// u32 + u32/2 relative, and β by u32|β|.
+func batchNormBound[T net.Float](s *shadow, b *net.BatchNorm[T], uR float64, rounded bool) {
+	st := b.Settings()
+	for j, z := range s.a {
+		g, sh := 1.0, 0.0
+		if b.Scale != nil {
+			g = float64(b.Scale.Value[j])
+		}
+		if b.Shift != nil {
+			sh = float64(b.Shift.Value[j])
+		}
+		m, v := float64(b.Mean.Value[j]), float64(b.Var.Value[j])
+		a := g / math.Sqrt(v+st.Epsilon)
+		y := (z-m)*a + sh
+		e := math.Abs(a)*s.e[j] + 6*u32*(math.Abs(a*z)+math.Abs(a*m)+math.Abs(sh)) + 5*u64*(math.Abs(a*(z-m))+math.Abs(sh)) + uR*math.Abs(y)
+		if rounded {
+			e += u32 * (math.Abs(a*m) + 1.5*math.Abs(a*(z-m)) + math.Abs(sh))
+		}
+		s.a[j], s.e[j] = y, e
+	}
 }
 
 // smooth: y = softplus(βz)/β. Propagated: dy/dz = σ(βz) ≤ 1. The runtime
@@ -509,6 +548,31 @@ func runtimeCases(t *testing.T) []runtimeCase {
 		})
 		cases = append(cases, prepare(t, "relu-featureinput-f64", &modelfile.Model[float64]{Network: n, Pipeline: p}, mixed, Options{FeatureInput: true, ScoresOnly: true}))
 	}
+	// Batch normalization after each hidden layer, trained for a few
+	// steps so that the running statistics are the network's own (they
+	// are what the export stores): with a learned scale, float32; with a
+	// scale and a shift, float64 rounded by the export. The running
+	// statistics are then moved off the last batch's by a seeded factor,
+	// so that a runtime that normalized by the batch it is given (training
+	// mode) could not match.
+	for _, f64 := range []bool{false, true} {
+		p := fitPipeline(t, mixed, prep.Options{})
+		if f64 {
+			n := build[float64](t, p.Width(), 9, func(b *net.Builder[float64]) {
+				b.ConstantFeature("one").Dense("h1", 16).BatchNorm("n1", true, true).ReLU("r1").
+					Dense("h2", 8).BatchNorm("n2", true, true).ReLU("r2").Readout("out", 3)
+			})
+			trainBN(t, n, mixed, p, rng)
+			cases = append(cases, prepare(t, "batchnorm-scale-shift-f64", &modelfile.Model[float64]{Network: n, Pipeline: p}, mixed, Options{}))
+			continue
+		}
+		n := build[float32](t, p.Width(), 9, func(b *net.Builder[float32]) {
+			b.ConstantFeature("one").Dense("h1", 16).BatchNorm("n1", true, false).ReLU("r1").
+				Dense("h2", 8).BatchNorm("n2", true, false).ReLU("r2").Readout("out", 3)
+		})
+		trainBN(t, n, mixed, p, rng)
+		cases = append(cases, prepare(t, "batchnorm-scale-f32", &modelfile.Model[float32]{Network: n, Pipeline: p}, mixed, Options{}))
+	}
 	// A categorical column with many levels capped at 4, between numeric
 	// columns: its block ends in the "other" feature, which rows of
 	// training levels beyond the kept 4 and rows of values never seen in
@@ -608,6 +672,36 @@ func fitPipeline(t *testing.T, tb table, o prep.Options) *prep.Pipeline {
 		t.Fatal(err)
 	}
 	return p
+}
+
+// trainBN runs a few training steps on the table's rows (random targets:
+// only the running statistics and weights matter here) and then scales
+// each running statistic by a seeded factor in [0.8, 1.25].
+func trainBN[T net.Float](t *testing.T, n *net.Network[T], tb table, p *prep.Pipeline, rng *rand.Rand) {
+	t.Helper()
+	set := &data.Set[T]{Rows: tb.rows, Features: n.In(), Outputs: n.Out(), X: make([]T, 0, tb.rows*n.In()), Y: make([]T, tb.rows*n.Out())}
+	feat := make([]float64, n.In())
+	for r := range tb.rows {
+		if err := p.ApplyColumns(tb.cols, r, feat); err != nil {
+			t.Fatal(err)
+		}
+		for _, v := range feat {
+			set.X = append(set.X, T(v))
+		}
+		set.Y[r*n.Out()+rng.IntN(n.Out())] = 1
+	}
+	tr, err := optim.NewTrainer[T](n, loss.Square[T]{}, set, optim.Settings{LearningRate: 0.02, BatchSize: 16, Epochs: 2, Seed: 4})
+	if err != nil {
+		t.Fatal(err)
+	}
+	if _, err := tr.Run(context.Background()); err != nil {
+		t.Fatal(err)
+	}
+	for _, r := range n.Running() {
+		for j := range r.Value {
+			r.Value[j] *= T(0.8 + 0.45*rng.Float64())
+		}
+	}
 }
 
 func build[T net.Float](t *testing.T, in int, seed uint64, f func(*net.Builder[T])) *net.Network[T] {

@@ -72,13 +72,16 @@ const (
 )
 
 // AttributeProto (onnx.proto: message AttributeProto) and its
-// AttributeType enum; only integer attributes are needed.
+// AttributeType enum; integer attributes, and one float (the ε of
+// BatchNormalization).
 const (
 	attrName protowire.Number = 1  // string name
+	attrF    protowire.Number = 2  // float f (fixed32 on the wire)
 	attrI    protowire.Number = 3  // int64 i
 	attrType protowire.Number = 20 // AttributeType type
 
-	attrTypeInt = 2 // AttributeType INT
+	attrTypeFloat = 1 // AttributeType FLOAT
+	attrTypeInt   = 2 // AttributeType INT
 )
 
 // TensorProto (onnx.proto: message TensorProto) and its DataType enum.
@@ -169,6 +172,15 @@ func attrInt(name string, v int64) msg {
 	a.str(attrName, name)
 	a.varint(attrType, attrTypeInt)
 	a.varint(attrI, v)
+	return a
+}
+
+func attrFloat(name string, v float32) msg {
+	var a msg
+	a.str(attrName, name)
+	a.varint(attrType, attrTypeFloat)
+	a = protowire.AppendTag(a, attrF, protowire.Fixed32Type)
+	a = protowire.AppendFixed32(a, math.Float32bits(v))
 	return a
 }
 
