@@ -191,3 +191,37 @@ func TestDivergenceAfterBestEpoch(t *testing.T) {
 		t.Errorf("training record %s lacks the change of step size", m.Training)
 	}
 }
+
+// TestDivergenceKeepsRunningStatistics: with batch normalization, the
+// checkpoint of a run that diverges before any epoch ends holds the
+// running statistics of its start (mean 0, variance 1, as the node
+// documents) beside the start's weights — not the statistics the failing
+// steps moved. (Before, it paired the old weights with the new
+// statistics.)
+func TestDivergenceKeepsRunningStatistics(t *testing.T) {
+	dir := t.TempDir()
+	csv := sensorCSV(t, dir, 150)
+	model := filepath.Join(dir, "bn.model")
+	ckpt := model + ".checkpoint"
+	r := run(t, nil, "train", "-data", csv, "-label", "state", "-hidden", "6", "-batchnorm", "-norm", "none", "-epochs", "3", "-lr", "1e6", "-quiet", "-o", model)
+	want(t, r, exitFailed, "training diverged", "saved in the checkpoint "+ckpt)
+	m, err := modelfile.Load[float32](ckpt)
+	if err != nil {
+		t.Fatal(err)
+	}
+	rs := m.Network.Running()
+	if len(rs) == 0 {
+		t.Fatal("the checkpoint holds no running statistics")
+	}
+	for _, rv := range rs {
+		want := float32(0)
+		if strings.HasSuffix(rv.Name, ".var") {
+			want = 1
+		}
+		for i, v := range rv.Value {
+			if v != want {
+				t.Fatalf("%s[%d] = %v; the start of the run has %v", rv.Name, i, v, want)
+			}
+		}
+	}
+}

@@ -516,8 +516,8 @@ func train[T net.Float](e *env, c *config, o *runOptions) error {
 	// last is the run at its last epoch boundary, or its start: the
 	// weights and trainer state a diverged run is saved from.
 	var last struct {
-		params [][]T
-		state  optim.State
+		params, running [][]T
+		state           optim.State
 	}
 	snapshot := func() {
 		ps := model.Params()
@@ -528,6 +528,17 @@ func train[T net.Float](e *env, c *config, o *runOptions) error {
 		}
 		for i, p := range ps {
 			copy(last.params[i], p.Value)
+		}
+		// Batch normalization's running statistics belong with the
+		// weights they were gathered for.
+		rs := model.Base().Running()
+		if last.running == nil {
+			for _, r := range rs {
+				last.running = append(last.running, make([]T, len(r.Value)))
+			}
+		}
+		for i, r := range rs {
+			copy(last.running[i], r.Value)
 		}
 		last.state = sess.Trainer().State()
 	}
@@ -640,10 +651,19 @@ func train[T net.Float](e *env, c *config, o *runOptions) error {
 		for i, p := range ps {
 			kept[i] = append([]T(nil), p.Value...)
 		}
+		rs := model.Base().Running()
+		keptRunning := make([][]T, len(rs))
+		for i, r := range rs {
+			keptRunning[i] = append([]T(nil), r.Value...)
+			copy(r.Value, last.running[i])
+		}
 		optim.SetParams(model, last.params)
 		st := last.state
 		serr := modelfile.Save(o.checkpoint, bundle(&st))
 		optim.SetParams(model, kept)
+		for i, r := range rs {
+			copy(r.Value, keptRunning[i])
+		}
 		return serr
 	}
 	if diverged {
