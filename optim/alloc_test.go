@@ -11,7 +11,8 @@ import (
 )
 
 // TestStepAllocatesNothing proves the training step is allocation-free
-// after warm-up (STYLE.md point 3), for a plain and a normalized network,
+// after warm-up (STYLE.md point 3), for a plain, a weight-normalized and a
+// batch-normalized network,
 // with momentum, noise and both samplings, and with the Step hook's
 // diagnostics computed.
 func TestStepAllocatesNothing(t *testing.T) {
@@ -35,7 +36,14 @@ func TestStepAllocatesNothing(t *testing.T) {
 		for r := range rows {
 			set.Y[r*shape[3]+r%shape[3]] = 1
 		}
-		for _, m := range []Model[float32]{n, w} {
+		bn, err := net.NewBuilder[float32](shape[0]).Dense("h1", shape[1]).BatchNorm("b1", true, false).ReLU("r1").Dense("h2", shape[2]).BatchNorm("b2", true, false).ReLU("r2").Readout("out", shape[3]).Build()
+		if err != nil {
+			t.Fatal(err)
+		}
+		if err := bn.Init(net.InitSettings{Seed: 1, Rho0: 1}); err != nil {
+			t.Fatal(err)
+		}
+		for _, m := range []Model[float32]{n, w, bn} {
 			for _, s := range []Settings{
 				{BatchSize: 128, Momentum: 0.9, Temperature: 1e-6, WeightDecay: 1e-4, Epochs: 1000},
 				{BatchSize: 64, Sampling: Independent, Epochs: 1000, Hooks: &Hooks{Step: func(*StepInfo) error { return nil }}},
