@@ -125,6 +125,13 @@ func TestHookValuesAgainstFormulas(t *testing.T) {
 // learning, so ρ increases at every step until it first meets ρ*; from then
 // on it tracks ρ* (ρ̇ = 2(mean f² + λ)(ρ* − ρ) pulls it back from either
 // side) and the gap closes.
+//
+// The claim is one global scale's: with several free layers (per layer,
+// per unit, plain) a small ρ0 with weight decay can instead shrink towards
+// 0 (optim/scales.go: below the smaller root the scales collapse), so
+// "rises monotonically" is not claimed there; TestEquilibriumEveryMode and
+// gauge's TestEquilibriumReachedInTraining check the settling itself in
+// every mode.
 func TestRhoSettlesAtEquilibrium(t *testing.T) {
 	set := irisBinary(t)
 	const rho0, lambda = 0.01, 0.05

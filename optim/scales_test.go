@@ -33,12 +33,19 @@ var scaleModes = []struct {
 
 // oneStep takes one full-batch plain SGD step of size eta (no momentum, no
 // noise) from a fresh model built by mk, and returns the hook's ρ and ρ̇
-// before the step and the network's ρ after it.
-func oneStep(t *testing.T, mk func() optim.Model[float64], set *data.Set[float64], eta, lambda float64) (rho, rate, after float64) {
+// before the step and the network's ρ after it; star receives the hook's
+// ρ*.
+func oneStep(t *testing.T, mk func() optim.Model[float64], set *data.Set[float64], eta, lambda float64, star ...*float64) (rho, rate, after float64) {
 	t.Helper()
 	m := mk()
 	s := optim.Settings{LearningRate: eta, BatchSize: set.Rows, Epochs: 1, WeightDecay: lambda, Seed: 1,
-		Hooks: &optim.Hooks{Step: func(i *optim.StepInfo) error { rho, rate = i.Rho, i.RhoDot; return nil }}}
+		Hooks: &optim.Hooks{Step: func(i *optim.StepInfo) error {
+			rho, rate = i.Rho, i.RhoDot
+			if len(star) > 0 {
+				*star[0] = i.RhoStar
+			}
+			return nil
+		}}}
 	tr, err := optim.NewTrainer[float64](m, loss.Square[float64]{}, set, s)
 	if err != nil {
 		t.Fatal(err)
@@ -87,7 +94,14 @@ func TestRhoRateEveryMode(t *testing.T) {
 			t.Run(fmt.Sprintf("%s/outputs=%d", mode.name, out), func(t *testing.T) {
 				mk := modeModel(t, widths, mode.o)
 				const eta = 1e-5
-				rho, rate, a1 := oneStep(t, mk, set, eta, lambda)
+				var hookStar float64
+				rho, rate, a1 := oneStep(t, mk, set, eta, lambda, &hookStar)
+				// The hook's ρ* is the mode's: a and b summed here from the
+				// normalized outputs (Σ⟨y, f⟩/N, Σ‖f‖²/N), the layer codes
+				// written out per mode (three dense layers).
+				if want := modeStar(mk(), set, lambda, mode.name); math.Abs(hookStar-want) > 1e-12*math.Abs(want) {
+					t.Errorf("the hook's ρ* %.15g, the mode's %.15g", hookStar, want)
+				}
 				_, _, a2 := oneStep(t, mk, set, eta/2, lambda)
 				d1, d2 := (a1-rho)/eta, (a2-rho)/(eta/2)
 				est := 2 * math.Abs(d1-d2)
@@ -107,6 +121,27 @@ func TestRhoRateEveryMode(t *testing.T) {
 			})
 		}
 	}
+}
+
+// modeStar is ρ* for mode at m's weights on the whole set, from sums
+// written out here and the mode's layer codes for a network of three dense
+// layers (normalize.Net.LayerScales's meaning: −1 fixed, 1 free with
+// decay).
+func modeStar(m optim.Model[float64], set *data.Set[float64], lambda float64, mode string) float64 {
+	rho := m.Base().Rho()
+	out := m.Forward(set.X, set.Rows)
+	var a, b float64
+	for i, v := range out {
+		f := v / rho
+		a += set.Y[i] * f
+		b += f * f
+	}
+	a, b = a/float64(set.Rows), b/float64(set.Rows)
+	codes := []int8{1, 1, 1}
+	if mode == "global" {
+		codes = []int8{1, -1, -1}
+	}
+	return optim.RhoStar(a, b, lambda, codes)
 }
 
 // oldRate is −E/ρ − 2λρ with E = ⟨G, W⟩ of the readout at m's weights on
