@@ -6,6 +6,7 @@ import (
 	"fmt"
 	"math"
 	"math/rand/v2"
+	"sync/atomic"
 	"time"
 
 	"github.com/rhomb/rhomb/data"
@@ -121,15 +122,15 @@ func (e *NonFiniteError) Error() string {
 // of the run — step and epoch counters, batch order, momentum, random
 // streams — so that Run can be called again to continue.
 type Trainer[T net.Float] struct {
-	// exact runs the noise-free steps (kept here so that handing them to
-	// the workers allocates nothing).
-	exact  ExactStep[T]
-	scales []int8 // layerScales, for the hooks
-	model  Model[T]
-	loss   loss.Func[T]
-	set    *data.Set[T]
-	s      Settings
-	params []*net.Param[T]
+	// guarded is the update pass of one parameter (kept here so that
+	// handing it to the workers allocates nothing).
+	guarded guardedUpdate[T]
+	scales  []int8 // layerScales, for the hooks
+	model   Model[T]
+	loss    loss.Func[T]
+	set     *data.Set[T]
+	s       Settings
+	params  []*net.Param[T]
 
 	batch         int // rows per step
 	stepsPerEpoch int
@@ -348,51 +349,71 @@ func (t *Trainer[T]) takeStep() error {
 // and the noise, in one pass per parameter. If any gradient or new value is
 // not finite it restores the weights and momentum from before the step.
 func (t *Trainer[T]) update(lr float64) error {
-	for _, p := range t.params {
-		for j, g := range p.Grad {
-			if notFinite(g) {
-				return &NonFiniteError{Step: t.step + 1, Epoch: t.epoch, What: "gradient of " + p.Name, Index: j, Value: float64(g)}
-			}
-		}
-	}
-	for i, p := range t.params {
-		copy(t.saved[i], p.Value)
-		if t.vel != nil {
-			copy(t.savedVel[i], t.vel[i])
-		}
-	}
 	decay2 := 2 * t.s.WeightDecay
 	mu := t.s.Momentum
 	sigma := math.Sqrt(2 * lr * t.s.Temperature)
+	// One pass per parameter checks the gradient, keeps the values (and
+	// velocities) for a rollback and updates them, chunk by chunk while
+	// the chunk is in cache; the noise-free pass runs on the workers of
+	// internal/kern. A non-finite gradient anywhere is reported before a
+	// non-finite update, and either error leaves every parameter as it
+	// was before the step.
+	if sigma > 0 {
+		// The noise is one sequential stream: a step refused for its
+		// gradient must not draw from it, so the gradients are checked
+		// before any parameter moves.
+		for _, p := range t.params {
+			for j, g := range p.Grad {
+				if notFinite(g) {
+					return &NonFiniteError{Step: t.step + 1, Epoch: t.epoch, What: "gradient of " + p.Name, Index: j, Value: float64(g)}
+				}
+			}
+		}
+	}
 	var bad *NonFiniteError
+	done := len(t.params)
 	for i, p := range t.params {
 		d := 0.0
 		if p.Decay {
 			d = decay2
 		}
-		var v []T
+		var v, sv []T
 		if t.vel != nil {
-			v = t.vel[i]
+			v, sv = t.vel[i], t.savedVel[i]
 		}
+		g := &t.guarded
+		*g = guardedUpdate[T]{val: p.Value, grad: p.Grad, vel: v, saved: t.saved[i], savedVel: sv}
+		g.gradBad.Store(int64(len(p.Value)))
 		j := -1
 		switch {
 		case sigma == 0:
-			// Without noise the elements are independent: the workers of
-			// internal/kern share a large parameter in chunks, each
-			// running stepExact, so the bits are those of one serial
-			// loop.
-			j = t.exact.Apply(p.Value, p.Grad, v, lr, d, mu, t.s.Nesterov)
-		case v == nil:
-			j = stepNoisy(p.Value, p.Grad, lr, d, sigma, t.noiseRNG)
+			// Without noise the elements are independent: the workers
+			// share a large parameter in chunks, so the bits are those
+			// of one serial loop.
+			g.step = exactUpdate[T]{lr: lr, d: d, mu: mu, nesterov: t.s.Nesterov}
+			j = kern.ParallelRange(len(p.Value), g)
 		default:
-			j = stepMomentum(p.Value, p.Grad, v, lr, d, mu, t.s.Nesterov, sigma, t.noiseRNG)
+			// One serial pass, for the one noise stream.
+			g.keep(0, len(p.Value))
+			if v == nil {
+				j = stepNoisy(p.Value, p.Grad, lr, d, sigma, t.noiseRNG)
+			} else {
+				j = stepMomentum(p.Value, p.Grad, v, lr, d, mu, t.s.Nesterov, sigma, t.noiseRNG)
+			}
+		}
+		gb := int(g.gradBad.Load())
+		*g = guardedUpdate[T]{}
+		if gb < len(p.Value) {
+			bad = &NonFiniteError{Step: t.step + 1, Epoch: t.epoch, What: "gradient of " + p.Name, Index: gb, Value: float64(p.Grad[gb])}
+			done = i + 1
+			break
 		}
 		if j >= 0 && bad == nil {
 			bad = &NonFiniteError{Step: t.step + 1, Epoch: t.epoch, What: "update of " + p.Name, Index: j, Value: float64(p.Value[j])}
 		}
 	}
 	if bad != nil {
-		for i, p := range t.params {
+		for i, p := range t.params[:done] {
 			copy(p.Value, t.saved[i])
 			if t.vel != nil {
 				copy(t.vel[i], t.savedVel[i])
@@ -402,6 +423,55 @@ func (t *Trainer[T]) update(lr float64) error {
 		return bad
 	}
 	return nil
+}
+
+// guardedUpdate is one parameter's pass of Trainer.update, for
+// kern.ParallelRange: per chunk, check the gradient, keep the values for
+// a rollback, then step. gradBad holds the smallest index of a
+// non-finite gradient (len(val) when none); a chunk with one is kept but
+// not stepped.
+type guardedUpdate[T net.Float] struct {
+	val, grad, vel  []T
+	saved, savedVel []T
+	step            exactUpdate[T]
+	gradBad         atomic.Int64
+}
+
+// keep checks grad[lo:hi], lowering gradBad to the first non-finite
+// index, and copies the chunk's values and velocities aside. It reports
+// whether the chunk's gradient is bad.
+func (g *guardedUpdate[T]) keep(lo, hi int) bool {
+	copy(g.saved[lo:hi], g.val[lo:hi])
+	if g.vel != nil {
+		copy(g.savedVel[lo:hi], g.vel[lo:hi])
+	}
+	for j, x := range g.grad[lo:hi] {
+		if notFinite(x) {
+			for b := int64(lo + j); ; {
+				cur := g.gradBad.Load()
+				if b >= cur || g.gradBad.CompareAndSwap(cur, b) {
+					break
+				}
+			}
+			return true
+		}
+	}
+	return false
+}
+
+func (g *guardedUpdate[T]) Range(lo, hi int) int {
+	if g.keep(lo, hi) {
+		return -1
+	}
+	var vel []T
+	if g.vel != nil {
+		vel = g.vel[lo:hi]
+	}
+	u := &g.step
+	if b := stepExact(g.val[lo:hi], g.grad[lo:hi], vel, u.lr, u.d, u.mu, u.nesterov); b >= 0 {
+		return lo + b
+	}
+	return -1
 }
 
 // The update loops. Each computes, per element and in float64,
