@@ -352,9 +352,10 @@ func (t *Trainer[T]) update(lr float64) error {
 	decay2 := 2 * t.s.WeightDecay
 	mu := t.s.Momentum
 	sigma := math.Sqrt(2 * lr * t.s.Temperature)
-	// One pass per parameter checks the gradient, keeps the values (and
-	// velocities) for a rollback and updates them, chunk by chunk while
-	// the chunk is in cache; the noise-free pass runs on the workers of
+	// One pass per parameter keeps the values (and velocities) for a
+	// rollback and updates them, chunk by chunk while the chunk is in
+	// cache, and finds a bad gradient from the bad values it makes
+	// (guardedUpdate); the noise-free pass runs on the workers of
 	// internal/kern. A non-finite gradient anywhere is reported before a
 	// non-finite update, and either error leaves every parameter as it
 	// was before the step.
@@ -426,10 +427,13 @@ func (t *Trainer[T]) update(lr float64) error {
 }
 
 // guardedUpdate is one parameter's pass of Trainer.update, for
-// kern.ParallelRange: per chunk, check the gradient, keep the values for
-// a rollback, then step. gradBad holds the smallest index of a
-// non-finite gradient (len(val) when none); a chunk with one is kept but
-// not stepped.
+// kern.ParallelRange: per chunk, keep the values for a rollback, then
+// step. gradBad holds the smallest index of a non-finite gradient
+// (len(val) when none). The gradient is looked at only where the step
+// made a value that is not finite: a non-finite gradient always makes one
+// (θ − η·(NaN or ±Inf), also with η = 0), so a chunk whose new values are
+// all finite had finite gradients, and the first bad gradient of a chunk
+// is at or after its first bad value.
 type guardedUpdate[T net.Float] struct {
 	val, grad, vel  []T
 	saved, savedVel []T
@@ -437,38 +441,37 @@ type guardedUpdate[T net.Float] struct {
 	gradBad         atomic.Int64
 }
 
-// keep checks grad[lo:hi], lowering gradBad to the first non-finite
-// index, and copies the chunk's values and velocities aside. It reports
-// whether the chunk's gradient is bad.
-func (g *guardedUpdate[T]) keep(lo, hi int) bool {
+// keep copies the values and velocities of [lo, hi) aside.
+func (g *guardedUpdate[T]) keep(lo, hi int) {
 	copy(g.saved[lo:hi], g.val[lo:hi])
 	if g.vel != nil {
 		copy(g.savedVel[lo:hi], g.vel[lo:hi])
 	}
-	for j, x := range g.grad[lo:hi] {
-		if notFinite(x) {
-			for b := int64(lo + j); ; {
+}
+
+// blame lowers gradBad to the first non-finite gradient in [from, hi).
+func (g *guardedUpdate[T]) blame(from, hi int) {
+	for j := from; j < hi; j++ {
+		if notFinite(g.grad[j]) {
+			for b := int64(j); ; {
 				cur := g.gradBad.Load()
 				if b >= cur || g.gradBad.CompareAndSwap(cur, b) {
-					break
+					return
 				}
 			}
-			return true
 		}
 	}
-	return false
 }
 
 func (g *guardedUpdate[T]) Range(lo, hi int) int {
-	if g.keep(lo, hi) {
-		return -1
-	}
+	g.keep(lo, hi)
 	var vel []T
 	if g.vel != nil {
 		vel = g.vel[lo:hi]
 	}
 	u := &g.step
 	if b := stepExact(g.val[lo:hi], g.grad[lo:hi], vel, u.lr, u.d, u.mu, u.nesterov); b >= 0 {
+		g.blame(lo+b, hi)
 		return lo + b
 	}
 	return -1

@@ -11,9 +11,9 @@ import (
 	"github.com/rhomb/rhomb/net"
 )
 
-// TestUpdatePassGuards checks the one pass that checks the gradient, keeps
-// the rollback copy and steps (Trainer.update) against the rule it must
-// keep: the new values are those of the serial noise-free step
+// TestUpdatePassGuards checks the one pass that keeps the rollback copy,
+// steps, and looks for a bad gradient only where a value went bad
+// (Trainer.update) against the rule it must keep: the new values are those of the serial noise-free step
 // (stepExact) bit for bit; a non-finite gradient anywhere is reported
 // before a non-finite update, with the smallest index of the first
 // parameter that has one; and after either error every value and
@@ -98,6 +98,15 @@ func TestUpdatePassGuards(t *testing.T) {
 		vals, vels = snapshot()
 		if err := tr.update(1e3); !errors.As(err, &nf) || nf.What != "update of "+tr.params[0].Name || nf.Index != 100 {
 			t.Fatalf("GOMAXPROCS %d: %v, want the update of %s at 100", procs, err, tr.params[0].Name)
+		}
+		unchanged(t, vals, vels)
+
+		// A step size of 0 still turns an infinite gradient into a
+		// non-finite value (0·∞ = NaN), so it is found.
+		tr.params[0].Grad[100] = 1
+		tr.params[2].Grad[3] = float32(math.Inf(-1))
+		if err := tr.update(0); !errors.As(err, &nf) || nf.What != "gradient of "+tr.params[2].Name || nf.Index != 3 {
+			t.Fatalf("GOMAXPROCS %d: %v, want the gradient of %s at 3", procs, err, tr.params[2].Name)
 		}
 		unchanged(t, vals, vels)
 	}
