@@ -262,7 +262,7 @@ func BenchmarkStepGonum(b *testing.B) {
 	}
 }
 
-func benchTrainer[T net.Float](b *testing.B, a arch) {
+func benchTrainer[T net.Float](b *testing.B, a arch, temperature float64) {
 	rows := a.batch * trainerSteps
 	x, y := draw[T](rand.New(rand.NewPCG(1, 3)), rows, a.in, a.out)
 	n := build[T](b, a)
@@ -271,7 +271,7 @@ func benchTrainer[T net.Float](b *testing.B, a arch) {
 	n.Forward(x, a.batch)
 	n.Backward(make([]T, a.batch*a.out))
 	set := &data.Set[T]{X: x, Y: y, Rows: rows, Features: a.in, Outputs: a.out}
-	tr, err := optim.NewTrainer[T](n, loss.Square[T]{}, set, optim.Settings{LearningRate: lr, BatchSize: a.batch, Epochs: b.N, Seed: 1})
+	tr, err := optim.NewTrainer[T](n, loss.Square[T]{}, set, optim.Settings{LearningRate: lr, BatchSize: a.batch, Epochs: b.N, Seed: 1, Temperature: temperature})
 	if err != nil {
 		b.Fatal(err)
 	}
@@ -288,10 +288,14 @@ func benchTrainer[T net.Float](b *testing.B, a arch) {
 // BenchmarkTrainer is optim.Trainer's Run: one operation is one epoch of
 // trainerSteps shuffled minibatch steps, with the trainer's own work
 // (gathering rows, finiteness checks, saving the weights for a rollback).
+// The T=1e-8 cases add the Langevin noise (one Gaussian draw per weight per
+// step; the temperature does not change the work).
 func BenchmarkTrainer(b *testing.B) {
 	for _, a := range archs {
-		b.Run(a.String()+"/"+floatName[float32](), func(b *testing.B) { benchTrainer[float32](b, a) })
-		b.Run(a.String()+"/"+floatName[float64](), func(b *testing.B) { benchTrainer[float64](b, a) })
+		b.Run(a.String()+"/"+floatName[float32](), func(b *testing.B) { benchTrainer[float32](b, a, 0) })
+		b.Run(a.String()+"/"+floatName[float64](), func(b *testing.B) { benchTrainer[float64](b, a, 0) })
+		b.Run(a.String()+"/"+floatName[float32]()+"/T=1e-8", func(b *testing.B) { benchTrainer[float32](b, a, 1e-8) })
+		b.Run(a.String()+"/"+floatName[float64]()+"/T=1e-8", func(b *testing.B) { benchTrainer[float64](b, a, 1e-8) })
 	}
 }
 

@@ -24,16 +24,20 @@
 // noise term is the Euler–Maruyama discretization of the Langevin equation
 // dθ = −∇L dt + √(2T) dB, whose stationary density is ∝ exp(−L/T). Random
 // numbers come from two PCG streams seeded by Settings.Seed, one for batch
-// order and one for noise.
+// order and one for noise. The noise stream gives one key per step; each
+// block of 1,024 elements of a parameter draws ξ from its own PCG stream
+// seeded from that key (through SplitMix64), so both cores can draw at
+// once and the bits do not depend on which core drew which block.
 //
 // A loss, gradient or updated weight that is NaN or infinite ends the run
-// with a *NonFiniteError naming the step and the parameter; the weights
-// are restored to those before the step.
+// with a *NonFiniteError naming the step and the parameter; the weights,
+// momentum and noise stream are restored to those before the step.
 //
 // # Determinism
 //
 // The same seed, data, model and settings give the same bits, whatever
-// GOMAXPROCS is: the matrix kernels never split a sum across goroutines.
+// GOMAXPROCS is: the matrix kernels never split a sum across goroutines,
+// and the update splits a parameter only into independent chunks.
 //
 // # Hooks
 //

@@ -144,6 +144,11 @@ type Trainer[T net.Float] struct {
 
 	batchSrc, noiseSrc *rand.PCG
 	batchRNG, noiseRNG *rand.Rand
+	// blockSrc and blockRNG are the noise streams of the blocks of a
+	// parameter (noiseBlock elements each), reseeded every step; nil
+	// without noise.
+	blockSrc []rand.PCG
+	blockRNG []*rand.Rand
 
 	vel, saved, savedVel [][]T
 	bx, by, gout, fnorm  []T
@@ -186,6 +191,18 @@ func NewTrainer[T net.Float](m Model[T], l loss.Func[T], set *data.Set[T], s Set
 	t.batchSrc = rand.NewPCG(s.Seed, 0x62617463) // "batc"
 	t.noiseSrc = rand.NewPCG(s.Seed, 0x6e6f6973) // "nois"
 	t.batchRNG, t.noiseRNG = rand.New(t.batchSrc), rand.New(t.noiseSrc)
+	if s.Temperature > 0 {
+		most := 0
+		for _, p := range t.params {
+			most = max(most, len(p.Value))
+		}
+		blocks := (most + noiseBlock - 1) / noiseBlock
+		t.blockSrc = make([]rand.PCG, blocks)
+		t.blockRNG = make([]*rand.Rand, blocks)
+		for i := range t.blockRNG {
+			t.blockRNG[i] = rand.New(&t.blockSrc[i])
+		}
+	}
 	for _, p := range t.params {
 		if s.Momentum > 0 {
 			t.vel = append(t.vel, make([]T, len(p.Value)))
@@ -353,23 +370,18 @@ func (t *Trainer[T]) update(lr float64) error {
 	mu := t.s.Momentum
 	sigma := math.Sqrt(2 * lr * t.s.Temperature)
 	// One pass per parameter keeps the values (and velocities) for a
-	// rollback and updates them, chunk by chunk while the chunk is in
-	// cache, and finds a bad gradient from the bad values it makes
-	// (guardedUpdate); the noise-free pass runs on the workers of
-	// internal/kern. A non-finite gradient anywhere is reported before a
-	// non-finite update, and either error leaves every parameter as it
-	// was before the step.
+	// rollback and updates them, chunk by chunk on the workers of
+	// internal/kern while the chunk is in cache, and finds a bad gradient
+	// from the bad values it makes (guardedUpdate). The noise of a step
+	// comes from one key drawn from the run's noise stream: each block of
+	// each parameter has its own stream seeded from it, so the blocks can
+	// be drawn on any worker in any order. A non-finite gradient anywhere
+	// is reported before a non-finite update, and either error leaves
+	// every parameter, velocity and stream as it was before the step.
+	var key uint64
+	noiseAt := *t.noiseSrc
 	if sigma > 0 {
-		// The noise is one sequential stream: a step refused for its
-		// gradient must not draw from it, so the gradients are checked
-		// before any parameter moves.
-		for _, p := range t.params {
-			for j, g := range p.Grad {
-				if notFinite(g) {
-					return &NonFiniteError{Step: t.step + 1, Epoch: t.epoch, What: "gradient of " + p.Name, Index: j, Value: float64(g)}
-				}
-			}
-		}
+		key = t.noiseRNG.Uint64()
 	}
 	var bad *NonFiniteError
 	done := len(t.params)
@@ -383,25 +395,14 @@ func (t *Trainer[T]) update(lr float64) error {
 			v, sv = t.vel[i], t.savedVel[i]
 		}
 		g := &t.guarded
-		*g = guardedUpdate[T]{val: p.Value, grad: p.Grad, vel: v, saved: t.saved[i], savedVel: sv}
-		g.gradBad.Store(int64(len(p.Value)))
-		j := -1
-		switch {
-		case sigma == 0:
-			// Without noise the elements are independent: the workers
-			// share a large parameter in chunks, so the bits are those
-			// of one serial loop.
-			g.step = exactUpdate[T]{lr: lr, d: d, mu: mu, nesterov: t.s.Nesterov}
-			j = kern.ParallelRange(len(p.Value), g)
-		default:
-			// One serial pass, for the one noise stream.
-			g.keep(0, len(p.Value))
-			if v == nil {
-				j = stepNoisy(p.Value, p.Grad, lr, d, sigma, t.noiseRNG)
-			} else {
-				j = stepMomentum(p.Value, p.Grad, v, lr, d, mu, t.s.Nesterov, sigma, t.noiseRNG)
-			}
+		*g = guardedUpdate[T]{val: p.Value, grad: p.Grad, vel: v, saved: t.saved[i], savedVel: sv,
+			step: exactUpdate[T]{lr: lr, d: d, mu: mu, nesterov: t.s.Nesterov}}
+		if sigma > 0 {
+			g.sigma, g.key, g.param = sigma, key, uint64(i)
+			g.src, g.rng = t.blockSrc, t.blockRNG
 		}
+		g.gradBad.Store(int64(len(p.Value)))
+		j := kern.ParallelRange(len(p.Value), g)
 		gb := int(g.gradBad.Load())
 		*g = guardedUpdate[T]{}
 		if gb < len(p.Value) {
@@ -420,25 +421,38 @@ func (t *Trainer[T]) update(lr float64) error {
 				copy(t.vel[i], t.savedVel[i])
 			}
 		}
+		*t.noiseSrc = noiseAt
 		Resync(t.model)
 		return bad
 	}
 	return nil
 }
 
+// noiseBlock is the number of elements that share one noise stream in a
+// step. It divides kern.RangeChunk, so the blocks are the same however
+// ParallelRange splits a parameter, and the bits do not depend on the
+// number of threads.
+const noiseBlock = kern.RangeChunk / 8
+
 // guardedUpdate is one parameter's pass of Trainer.update, for
 // kern.ParallelRange: per chunk, keep the values for a rollback, then
 // step. gradBad holds the smallest index of a non-finite gradient
 // (len(val) when none). The gradient is looked at only where the step
 // made a value that is not finite: a non-finite gradient always makes one
-// (θ − η·(NaN or ±Inf), also with η = 0), so a chunk whose new values are
-// all finite had finite gradients, and the first bad gradient of a chunk
-// is at or after its first bad value.
+// (θ − η·(NaN or ±Inf), also with η = 0, and adding noise keeps it), so a
+// chunk whose new values are all finite had finite gradients, and the
+// first bad gradient of a chunk is at or after its first bad value.
 type guardedUpdate[T net.Float] struct {
 	val, grad, vel  []T
 	saved, savedVel []T
 	step            exactUpdate[T]
 	gradBad         atomic.Int64
+	// With noise (sigma > 0): the step's key, the parameter's index, and
+	// the streams of its blocks.
+	sigma      float64
+	key, param uint64
+	src        []rand.PCG
+	rng        []*rand.Rand
 }
 
 // keep copies the values and velocities of [lo, hi) aside.
@@ -470,11 +484,52 @@ func (g *guardedUpdate[T]) Range(lo, hi int) int {
 		vel = g.vel[lo:hi]
 	}
 	u := &g.step
-	if b := stepExact(g.val[lo:hi], g.grad[lo:hi], vel, u.lr, u.d, u.mu, u.nesterov); b >= 0 {
+	b := -1
+	if g.sigma == 0 {
+		b = stepExact(g.val[lo:hi], g.grad[lo:hi], vel, u.lr, u.d, u.mu, u.nesterov)
+	} else {
+		b = g.noisy(lo, hi, vel)
+	}
+	if b >= 0 {
 		g.blame(lo+b, hi)
 		return lo + b
 	}
 	return -1
+}
+
+// noisy steps [lo, hi) block by block, each block with its own stream
+// seeded from (key, param, block), and returns the first bad index
+// relative to lo, or −1. lo is a multiple of noiseBlock (kern.RangeChunk).
+func (g *guardedUpdate[T]) noisy(lo, hi int, vel []T) int {
+	u := &g.step
+	bad := -1
+	for s := lo; s < hi; s += noiseBlock {
+		e := min(s+noiseBlock, hi)
+		k := s / noiseBlock
+		seed := splitMix(g.key ^ splitMix(g.param+1))
+		g.src[k].Seed(seed, splitMix(seed^uint64(k)))
+		var j int
+		if vel == nil {
+			j = stepNoisy(g.val[s:e], g.grad[s:e], u.lr, u.d, g.sigma, g.rng[k])
+		} else {
+			j = stepMomentum(g.val[s:e], g.grad[s:e], vel[s-lo:e-lo], u.lr, u.d, u.mu, u.nesterov, g.sigma, g.rng[k])
+		}
+		if j >= 0 && bad < 0 {
+			bad = s - lo + j
+		}
+	}
+	return bad
+}
+
+// splitMix is the SplitMix64 output function (Steele, Lea & Flood,
+// "Fast splittable pseudorandom number generators", OOPSLA 2014; constants
+// from memory, checked against the published reference values in the
+// test): it spreads nearby keys to unrelated 64-bit seeds.
+func splitMix(x uint64) uint64 {
+	x += 0x9e3779b97f4a7c15
+	x = (x ^ x>>30) * 0xbf58476d1ce4e5b9
+	x = (x ^ x>>27) * 0x94d049bb133111eb
+	return x ^ x>>31
 }
 
 // The update loops. Each computes, per element and in float64,
@@ -484,9 +539,9 @@ func (g *guardedUpdate[T]) Range(lo, hi int) int {
 //
 // in that order, so every variant gives the bits the general one would;
 // they exist so that the common cases run without per-element branches.
-// The steps without noise (stepExact) run on the workers of internal/kern
-// for large parameters, in independent chunks; the noisy ones stay serial,
-// since the noise is one sequential stream.
+// All run on the workers of internal/kern for large parameters, in
+// independent chunks; the noisy ones draw from one stream per block
+// (guardedUpdate.noisy).
 // Each returns the index of the first updated value that is not finite,
 // or −1.
 

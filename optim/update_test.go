@@ -111,3 +111,143 @@ func TestUpdatePassGuards(t *testing.T) {
 		unchanged(t, vals, vels)
 	}
 }
+
+// TestSplitMix checks splitMix against the first outputs of SplitMix64
+// seeded with 0 (the generator's published reference sequence, values
+// from memory: 0xe220a8397b1dcdaf, 0x6e789e6aa1b965f4, 0x06c45d188009454f).
+func TestSplitMix(t *testing.T) {
+	const golden = 0x9e3779b97f4a7c15
+	for i, want := range []uint64{0xe220a8397b1dcdaf, 0x6e789e6aa1b965f4, 0x06c45d188009454f} {
+		if got := splitMix(uint64(i) * golden); got != want {
+			t.Errorf("output %d: %#x, want %#x", i, got, want)
+		}
+	}
+}
+
+// TestNoiseBlocks checks the Langevin step drawn block by block. With zero
+// gradient, no decay and no momentum, a step moves every weight by σξ
+// with ξ standard normal. Over the n ≥ 2^17 weights of one step: the mean
+// of the moves lies within 5σ/√n of 0, their variance within
+// 5·σ²·√(2/n) of σ² (the sample variance of n normal draws has standard
+// deviation σ²√(2/(n−1)); closed form), and the correlation of two
+// blocks, of one block in two steps, or of two parameters within
+// 5/√noiseBlock of 0 (independent streams; the correlation of m
+// independent pairs has standard deviation about 1/√m; common practice,
+// no source). The bits do not depend on GOMAXPROCS, and a step refused
+// for a bad gradient leaves the noise stream where it was.
+func TestNoiseBlocks(t *testing.T) {
+	build := func() (*Trainer[float64], *net.Network[float64]) {
+		n, err := net.NewBuilder[float64](300).Dense("h1", 256).ReLU("r1").Dense("h2", 512).ReLU("r2").Readout("out", 10).Build()
+		if err != nil {
+			t.Fatal(err)
+		}
+		if err := n.Init(net.InitSettings{Seed: 3, Rho0: 1}); err != nil {
+			t.Fatal(err)
+		}
+		set := &data.Set[float64]{Rows: 4, Features: 300, Outputs: 10, X: make([]float64, 1200), Y: make([]float64, 40)}
+		tr, err := NewTrainer(Model[float64](n), loss.Square[float64]{}, set, Settings{Temperature: 0.5, Seed: 9})
+		if err != nil {
+			t.Fatal(err)
+		}
+		return tr, n
+	}
+	const lr = 0.01
+	sigma := math.Sqrt(2 * lr * 0.5)
+	moves := func(tr *Trainer[float64]) [][]float64 {
+		var before [][]float64
+		for _, p := range tr.params {
+			before = append(before, append([]float64(nil), p.Value...))
+			clear(p.Grad)
+		}
+		if err := tr.update(lr); err != nil {
+			t.Fatal(err)
+		}
+		for i, p := range tr.params {
+			for j := range p.Value {
+				before[i][j] = p.Value[j] - before[i][j]
+			}
+		}
+		return before
+	}
+	corr := func(a, b []float64) float64 {
+		var sa, sb, sab, saa, sbb float64
+		for i := range a {
+			sa, sb = sa+a[i], sb+b[i]
+		}
+		ma, mb := sa/float64(len(a)), sb/float64(len(b))
+		for i := range a {
+			sab += (a[i] - ma) * (b[i] - mb)
+			saa += (a[i] - ma) * (a[i] - ma)
+			sbb += (b[i] - mb) * (b[i] - mb)
+		}
+		return sab / math.Sqrt(saa*sbb)
+	}
+	defer runtime.GOMAXPROCS(runtime.GOMAXPROCS(0))
+	var first [][]float64
+	for _, procs := range []int{1, 2} {
+		runtime.GOMAXPROCS(procs)
+		tr, _ := build()
+		step1, step2 := moves(tr), moves(tr)
+		big := step1[1]
+		if len(big) < 1<<17 {
+			t.Fatalf("%d weights: too few for the bounds", len(big))
+		}
+		var s, ss float64
+		for _, x := range big {
+			s += x
+			ss += x * x
+		}
+		m := float64(len(big))
+		mean := s / m
+		variance := (ss - m*mean*mean) / (m - 1)
+		if math.Abs(mean) > 5*sigma/math.Sqrt(m) {
+			t.Errorf("mean move %.3g, want within %.3g of 0", mean, 5*sigma/math.Sqrt(m))
+		}
+		if tol := 5 * sigma * sigma * math.Sqrt(2/m); math.Abs(variance-sigma*sigma) > tol {
+			t.Errorf("variance of the moves %.6g, want %.6g ± %.3g", variance, sigma*sigma, tol)
+		}
+		lim := 5 / math.Sqrt(noiseBlock)
+		blocks := func(x []float64, k int) []float64 { return x[k*noiseBlock : (k+1)*noiseBlock] }
+		for name, r := range map[string]float64{
+			"blocks 0 and 1":          corr(blocks(big, 0), blocks(big, 1)),
+			"blocks 7 and 8":          corr(blocks(big, 7), blocks(big, 8)),
+			"block 3 in two steps":    corr(blocks(big, 3), blocks(step2[1], 3)),
+			"block 0 of h1 and of h2": corr(blocks(step1[0], 0), blocks(big, 0)),
+		} {
+			if math.Abs(r) > lim {
+				t.Errorf("%s: correlation %.3f, want within %.3f of 0", name, r, lim)
+			}
+		}
+		if first == nil {
+			first = step1
+			continue
+		}
+		for i := range first {
+			for j := range first[i] {
+				if math.Float64bits(first[i][j]) != math.Float64bits(step1[i][j]) {
+					t.Fatalf("parameter %d [%d]: GOMAXPROCS %d moved it by %v, GOMAXPROCS 1 by %v", i, j, procs, step1[i][j], first[i][j])
+				}
+			}
+		}
+	}
+
+	// A refused step leaves the stream: the next step draws what the
+	// first step of a fresh trainer draws.
+	tr, _ := build()
+	for _, p := range tr.params {
+		clear(p.Grad)
+	}
+	tr.params[1].Grad[5] = math.NaN()
+	var nf *NonFiniteError
+	if err := tr.update(lr); !errors.As(err, &nf) || nf.Index != 5 {
+		t.Fatalf("%v, want a bad gradient at 5", err)
+	}
+	again := moves(tr)
+	for i := range first {
+		for j := range first[i] {
+			if math.Float64bits(first[i][j]) != math.Float64bits(again[i][j]) {
+				t.Fatalf("after a refused step, parameter %d [%d] moved by %v, want %v", i, j, again[i][j], first[i][j])
+			}
+		}
+	}
+}

@@ -16,8 +16,14 @@ const (
 	// updateChunk is the number of elements a worker claims at a time:
 	// small enough that two workers share a matrix evenly, large enough
 	// that claiming (one atomic add) costs nothing beside the arithmetic.
-	updateChunk = 1 << 13
+	updateChunk = RangeChunk
 )
+
+// RangeChunk is the grain of ParallelRange: every Range call it makes
+// starts at a multiple of RangeChunk (or covers the whole range), so work
+// keyed by fixed blocks that divide it (the trainer's noise streams) sees
+// the same blocks whatever the split.
+const RangeChunk = 1 << 13
 
 // Ranger is elementwise work over [0, n) that splits into contiguous
 // chunks: Range(lo, hi) does elements lo … hi−1 and returns the smallest
