@@ -89,10 +89,10 @@ func (s *blasStep[T]) update() {
 func BenchmarkStepBlas(b *testing.B) {
 	for _, a := range archs {
 		b.Run(a.String()+"/"+floatName[float32](), func(b *testing.B) {
-			runSteps(b, newBlasStep(newStep[float32](b, a, rand.New(rand.NewPCG(1, 2)))), a)
+			runSteps[float32](b, newBlasStep(newStep[float32](b, a, rand.New(rand.NewPCG(1, 2)))), a)
 		})
 		b.Run(a.String()+"/"+floatName[float64](), func(b *testing.B) {
-			runSteps(b, newBlasStep(newStep[float64](b, a, rand.New(rand.NewPCG(1, 2)))), a)
+			runSteps[float64](b, newBlasStep(newStep[float64](b, a, rand.New(rand.NewPCG(1, 2)))), a)
 		})
 	}
 }

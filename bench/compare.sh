@@ -16,7 +16,7 @@ go test -c -o "$bin" ./bench/
 i=1
 while [ "$i" -le "$rounds" ]; do
 	echo "== round $i"
-	(cd bench && "$bin" -test.run '^$' -test.bench '^(BenchmarkRatio|BenchmarkGemmSquare)$' -test.benchtime 20x -test.cpu 1,2 | grep -E '^Benchmark')
+	(cd bench && "$bin" -test.run '^$' -test.bench '^(BenchmarkPeak|BenchmarkRatio|BenchmarkGemmSquare)$' -test.benchtime 20x -test.cpu 1,2 | grep -E '^Benchmark')
 	env -u OPENBLAS_CORETYPE -u OPENBLAS_L2_SIZE "${PYTHON:-python3}" bench/numpy_step.py
 	i=$((i + 1))
 done

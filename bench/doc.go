@@ -12,6 +12,7 @@
 //	BenchmarkStep/net=784-512-512-10/batch=128/float=32       rhomb, one step by hand
 //	BenchmarkStepGonum/net=784-512-512-10/batch=128/float=64  the gonum mat.Dense baseline
 //	BenchmarkTrainer/net=784-512-512-10/batch=128/float=32    optim.Trainer, one epoch of 8 steps
+//	BenchmarkTrainer/net=784-512-512-10/batch=128/float=32/T=1e-8   the same with Langevin noise
 //
 // for the networks 784-512-512-10 at batch 128 (Fashion-MNIST-shaped
 // inputs: 784 values in [0, 1), 10 classes) and 16-32-32-4 at batch 32,
@@ -34,6 +35,9 @@
 //
 // Further benchmarks, each named by its parameters:
 //
+//	BenchmarkPeak          the machine's peak (register-only FMA loop, kern.Peak) on GOMAXPROCS
+//	                       cores, float64 and float32; every GFLOP/s figure also reports
+//	                       "of-peak", its fraction of the peak measured once in the same run
 //	BenchmarkStepBlas      the step with gonum's BLAS (Sgemm/Dgemm) and loops, float32 and float64
 //	BenchmarkRatio         rhomb and both gonum baselines interleaved in one operation; reports
 //	                       each one's samples/s and rhomb's speed-up ("x-blas", "x-mat")

@@ -73,11 +73,18 @@ func randomSlice[T net.Float](rng *rand.Rand, n int) []T {
 }
 
 // reportFlops reports GFLOP/s per wall-clock and per processor second for
-// flops floating-point operations per benchmark operation.
-func reportFlops(b *testing.B, flops float64, cpu time.Duration) {
-	b.ReportMetric(flops*float64(b.N)/b.Elapsed().Seconds()/1e9, "GFLOP/s")
+// flops floating-point operations of type T per benchmark operation, and
+// the wall-clock rate as a fraction of the machine's peak for T on
+// GOMAXPROCS cores measured in the same run ("of-peak"; not reported
+// where the build cannot measure a peak).
+func reportFlops[T net.Float](b *testing.B, flops float64, cpu time.Duration) {
+	rate := flops * float64(b.N) / b.Elapsed().Seconds() / 1e9
+	b.ReportMetric(rate, "GFLOP/s")
 	if cpu > 0 {
 		b.ReportMetric(flops*float64(b.N)/cpu.Seconds()/1e9, "GFLOP/cpu-s")
+	}
+	if p := peakOf[T](); p > 0 {
+		b.ReportMetric(rate/p, "of-peak")
 	}
 }
 
@@ -103,7 +110,7 @@ func benchSquare[T net.Float](b *testing.B, n int) {
 			for range b.N {
 				im.f(false, true, n, n, n, x, n, y, n, c, n)
 			}
-			reportFlops(b, 2*float64(n)*float64(n)*float64(n), cpuTime()-t0)
+			reportFlops[T](b, 2*float64(n)*float64(n)*float64(n), cpuTime()-t0)
 		})
 	}
 }
@@ -180,7 +187,7 @@ func stepProducts[T net.Float](b *testing.B, a arch) {
 			for range b.N {
 				run()
 			}
-			reportFlops(b, a.flops(), cpuTime()-t0)
+			reportFlops[T](b, a.flops(), cpuTime()-t0)
 			b.ReportMetric(float64(b.N*a.batch)/b.Elapsed().Seconds(), "samples/s")
 		})
 	}
@@ -214,7 +221,7 @@ func productBench[T net.Float](b *testing.B, a arch, p product) {
 			for range b.N {
 				im.f(p.tA, p.tB, p.m, p.n, p.k, x, lda, y, ldb, c, p.n)
 			}
-			reportFlops(b, 2*float64(p.m)*float64(p.n)*float64(p.k), cpuTime()-t0)
+			reportFlops[T](b, 2*float64(p.m)*float64(p.n)*float64(p.k), cpuTime()-t0)
 		})
 	}
 }

@@ -222,7 +222,7 @@ type stepper interface {
 // runSteps times b.N steps of s after one warm-up step, which sizes the
 // network's buffers and starts the kernel's workers. Besides samples/s it
 // reports the step's matrix-product work (arch.flops) per second.
-func runSteps(b *testing.B, s stepper, a arch) {
+func runSteps[T net.Float](b *testing.B, s stepper, a arch) {
 	s.grads()
 	s.update()
 	b.ReportAllocs()
@@ -234,7 +234,7 @@ func runSteps(b *testing.B, s stepper, a arch) {
 		s.update()
 	}
 	b.StopTimer()
-	reportFlops(b, a.flops(), cpuTime()-t0)
+	reportFlops[T](b, a.flops(), cpuTime()-t0)
 	report(b, a.batch, l)
 }
 
@@ -243,10 +243,10 @@ func runSteps(b *testing.B, s stepper, a arch) {
 func BenchmarkStep(b *testing.B) {
 	for _, a := range archs {
 		b.Run(a.String()+"/"+floatName[float32](), func(b *testing.B) {
-			runSteps(b, newStep[float32](b, a, rand.New(rand.NewPCG(1, 2))), a)
+			runSteps[float32](b, newStep[float32](b, a, rand.New(rand.NewPCG(1, 2))), a)
 		})
 		b.Run(a.String()+"/"+floatName[float64](), func(b *testing.B) {
-			runSteps(b, newStep[float64](b, a, rand.New(rand.NewPCG(1, 2))), a)
+			runSteps[float64](b, newStep[float64](b, a, rand.New(rand.NewPCG(1, 2))), a)
 		})
 	}
 }
@@ -257,7 +257,7 @@ func BenchmarkStep(b *testing.B) {
 func BenchmarkStepGonum(b *testing.B) {
 	for _, a := range archs {
 		b.Run(a.String()+"/float=64", func(b *testing.B) {
-			runSteps(b, gonumFrom(newStep[float64](b, a, rand.New(rand.NewPCG(1, 2)))), a)
+			runSteps[float64](b, gonumFrom(newStep[float64](b, a, rand.New(rand.NewPCG(1, 2)))), a)
 		})
 	}
 }

@@ -193,3 +193,15 @@ func hasAVX2() bool { return cpu.X86.HasAVX2 && cpu.X86.HasFMA }
 
 // hasAVX512 asks for the foundation and DQ (VXORPD on 512-bit registers).
 func hasAVX512() bool { return cpu.X86.HasAVX512F && cpu.X86.HasAVX512DQ && hasAVX2() }
+
+// peakLoop is the widest register-only FMA loop this CPU runs, with its
+// float64 lanes and name.
+func peakLoop() (loop func(int), lanes int, isa string) {
+	switch {
+	case hasAVX512():
+		return peakAVX512, 8, "avx512"
+	case hasAVX2():
+		return peakAVX2, 4, "avx2"
+	}
+	return nil, 0, ""
+}
