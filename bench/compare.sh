@@ -6,6 +6,10 @@
 #
 #   sh bench/compare.sh [rounds]    (from the repository root; default 3)
 #
+# With RHOMB_OPENDATA set to the folder .ci/fetch-data fills, each round
+# also runs one Fashion-MNIST epoch through the trainer
+# (BenchmarkFashionEpoch) and the same epoch in numpy (numpy_epoch.py).
+#
 # Needs python3 with numpy (Debian: apt-get install python3-numpy
 # libopenblas0-pthread; set PYTHON to choose the interpreter). OPENBLAS_CORETYPE and OPENBLAS_L2_SIZE are unset for
 # the numpy command only, so that OpenBLAS detects the processor itself.
@@ -18,6 +22,10 @@ while [ "$i" -le "$rounds" ]; do
 	echo "== round $i"
 	(cd bench && "$bin" -test.run '^$' -test.bench '^(BenchmarkPeak|BenchmarkRatio|BenchmarkGemmSquare)$' -test.benchtime 20x -test.cpu 1,2 | grep -E '^Benchmark')
 	env -u OPENBLAS_CORETYPE -u OPENBLAS_L2_SIZE "${PYTHON:-python3}" bench/numpy_step.py
+	if [ -n "$RHOMB_OPENDATA" ]; then
+		(cd bench && "$bin" -test.run '^$' -test.bench '^BenchmarkFashionEpoch$' -test.benchtime 1x | grep -E '^Benchmark')
+		env -u OPENBLAS_CORETYPE -u OPENBLAS_L2_SIZE "${PYTHON:-python3}" bench/numpy_epoch.py "$RHOMB_OPENDATA"
+	fi
 	i=$((i + 1))
 done
 rm -f "$bin"

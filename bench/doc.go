@@ -45,6 +45,9 @@
 //	BenchmarkProduct       each of those products alone (op=fwd1-128x512x784, ...)
 //	BenchmarkGemmSquare    C = A·Bᵀ on square sizes 64 to 1024, rhomb and gonum
 //	BenchmarkEpochRows     one optim.Trainer epoch at 10k to 60k rows (slow; only with RHOMB_EPOCH_ROWS=1)
+//	BenchmarkFashionEpoch  one epoch of the 60,000 Fashion-MNIST training images through optim.Trainer,
+//	                       784-256-128-10 and 784-512-512-10, batch 128 (only with RHOMB_OPENDATA;
+//	                       numpy_epoch.py is the same epoch in numpy)
 //
 // GFLOP/s counts 2mnk per product, three forward and five backward products
 // per step (the first layer's input gradient is not computed). Run with
