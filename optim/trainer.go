@@ -587,9 +587,40 @@ func (u *exactUpdate[T]) Range(lo, hi int) int {
 	return -1
 }
 
-// stepExact is the noise-free step, one variant per case so that the
-// common ones run without per-element branches.
+// stepExact is the noise-free step: the vector loop of internal/kern
+// (kern.SGDStep, the same operations in the same order, four elements at
+// a time) where the processor has one, and stepScalar on the rest.
 func stepExact[T net.Float](val, grad, vel []T, lr, d, mu float64, nesterov bool) int {
+	done, nonFinite := kern.SGDStep(val, grad, vel, lr, d, mu, nesterov)
+	if nonFinite {
+		for j, v := range val[:done] {
+			if notFinite(v) {
+				// The rest is still updated, as the scalar loop would.
+				var rest []T
+				if vel != nil {
+					rest = vel[done:]
+				}
+				stepScalar(val[done:], grad[done:len(val)], rest, lr, d, mu, nesterov)
+				return j
+			}
+		}
+	}
+	if done == len(val) {
+		return -1
+	}
+	var rest []T
+	if vel != nil {
+		rest = vel[done:]
+	}
+	if b := stepScalar(val[done:], grad[done:len(val)], rest, lr, d, mu, nesterov); b >= 0 {
+		return done + b
+	}
+	return -1
+}
+
+// stepScalar is the noise-free step element by element, one variant per
+// case so that the common ones run without per-element branches.
+func stepScalar[T net.Float](val, grad, vel []T, lr, d, mu float64, nesterov bool) int {
 	bad := -1
 	grad = grad[:len(val)]
 	switch {

@@ -52,3 +52,46 @@ func ReLUMask[T Float](x, dy, dx []T) {
 		}
 	}
 }
+
+// SGDStep runs the vector part of optim's noise-free update (the rule is
+// stated and tested there, at stepExact) over the longest prefix of val
+// whose length is a multiple of 4, where the processor has the vector
+// unit (AVX2) and the assembly is built: θ ← θ − lr·g with g = grad +
+// d·θ, and with momentum (vel not nil) v ← μv + g, g ← v (heavy ball) or
+// g + μv (Nesterov), each operation rounded in float64, values rounded to
+// T. It returns how many leading elements it updated (0 without the
+// vector unit) and whether any of their new values is not finite; the
+// caller runs the scalar loop on the rest.
+func SGDStep[T Float](val, grad, vel []T, lr, d, mu float64, nesterov bool) (done int, nonFinite bool) {
+	if !useVector {
+		return 0, false
+	}
+	done = len(val) &^ 3
+	if done == 0 {
+		return 0, false
+	}
+	mode := 0
+	if vel != nil {
+		mode = 1
+		if nesterov {
+			mode = 2
+		}
+		vel = vel[:done]
+	}
+	grad = grad[:done]
+	switch v := any(val).(type) {
+	case []float32:
+		var vp *float32
+		if vel != nil {
+			vp = &any(vel).([]float32)[0]
+		}
+		return done, sgdF32(&v[0], &any(grad).([]float32)[0], vp, done, lr, d, mu, mode)
+	case []float64:
+		var vp *float64
+		if vel != nil {
+			vp = &any(vel).([]float64)[0]
+		}
+		return done, sgdF64(&v[0], &any(grad).([]float64)[0], vp, done, lr, d, mu, mode)
+	}
+	return 0, false
+}

@@ -205,3 +205,11 @@ func peakLoop() (loop func(int), lanes int, isa string) {
 	}
 	return nil, 0, ""
 }
+
+// sgdF32 and sgdF64 are the vector loops of SGDStep (update_amd64.s).
+//
+//go:noescape
+func sgdF32(val, grad, vel *float32, n int, lr, d, mu float64, mode int) (nonFinite bool)
+
+//go:noescape
+func sgdF64(val, grad, vel *float64, n int, lr, d, mu float64, mode int) (nonFinite bool)

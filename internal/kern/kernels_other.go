@@ -29,3 +29,11 @@ func transpose4x4F64(src *float64, lds int, dst *float64, ldd int) { panic("kern
 
 // Without assembly there is no register-only loop to measure a peak with.
 func peakLoop() (loop func(int), lanes int, isa string) { return nil, 0, "" }
+
+func sgdF32(val, grad, vel *float32, n int, lr, d, mu float64, mode int) bool {
+	panic("kern: no assembly")
+}
+
+func sgdF64(val, grad, vel *float64, n int, lr, d, mu float64, mode int) bool {
+	panic("kern: no assembly")
+}
