@@ -100,7 +100,12 @@ func claimNet(t testing.TB, hidden int, seed uint64, rho0 float64) *net.Network[
 
 func claimWrap(t testing.TB, n *net.Network[float64]) *normalize.Net[float64] {
 	t.Helper()
-	w, err := normalize.Wrap(n, normalize.Options{Scale: normalize.Global})
+	return claimWrapWith(t, n, normalize.Options{Scale: normalize.Global})
+}
+
+func claimWrapWith(t testing.TB, n *net.Network[float64], o normalize.Options) *normalize.Net[float64] {
+	t.Helper()
+	w, err := normalize.Wrap(n, o)
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -167,7 +172,48 @@ func relDiff(a, b float64) float64 { return math.Abs(a-b) / math.Abs(b) }
 // η = 0.02, the run from the large ρ0 kills hidden units in its first steps
 // and ends with minimum margin 0 (some rows get output 0) — a large ρ0 with
 // one global ρ needs a small step.
+//
+// The same runs under the default per-layer scales (W_k = ρ_k·V_k, decay
+// λΣρ_k², ρ = ∏ρ_k; values when written):
+//
+//	ρ0     | detector fires      | 20,000 epochs      | 100,000 epochs
+//	       | step  ρ     min γ   | ρ      min γ       | ρ      min γ
+//	1e-3   | 6499  1.662 0.3141  | 2.3788 0.31266     | 2.8044 0.2909
+//	1e-1   |  828  1.646 0.3478  | 2.4398 0.31922     |
+//	10     |   87  7.117 0.0917  | 2.9176 0.28192     | 2.8121 0.29019
+//
+// The claim, small against large ρ0, holds here too at the detector and at
+// the budget. Unlike one global scale, ρ0 = 1e-3 and 1e-1 do not end at the
+// same point after 20,000 epochs: 2.5% apart in ρ and 2.1% in the minimum
+// margin, and in the margin against the claim's order (the smaller ρ0 has
+// the smaller margin): each layer's scale climbs on its own, from ρ_k =
+// ρ0^{1/2}, so the run from 1e-3 does not simply retrace the other. And the
+// transient is forgotten again: after 100,000 epochs ρ0 = 10 and 1e-3 are
+// within 0.3% in ρ and in the minimum margin, gaps 70 and 43 times smaller
+// than at 20,000, at a different end point from the global scale's (ρ 2.81
+// against 2.12, margin 0.29 against 0.31).
 func TestClaimSmallRho0LargerMargin(t *testing.T) {
+	// sameEnd is the relative gap below which ρ0 = 1e-3 and 1e-1 count as
+	// the same end point after the budget, and shrink the factor by which
+	// the gap between ρ0 = 10 and 1e-3 must close by 100,000 epochs. For
+	// the global scale both follow from the findings below (30 times the
+	// measured gap; a 100-fold closing). For per-layer scales the runs do
+	// not end together: the measured 2.5% gap is asserted to stay below
+	// 5%, and the closing to be at least 20-fold (measured 43 and 70):
+	// regression guards, chosen after the runs.
+	for _, mode := range []struct {
+		name            string
+		opts            normalize.Options
+		sameEnd, shrink float64
+	}{
+		{"global", normalize.Options{Scale: normalize.Global}, 1e-2, 100},
+		{"per-layer", normalize.Options{Scale: normalize.PerLayer}, 5e-2, 20},
+	} {
+		t.Run(mode.name, func(t *testing.T) { claimSmallRho0(t, mode.opts, mode.sameEnd, mode.shrink) })
+	}
+}
+
+func claimSmallRho0(t *testing.T, opts normalize.Options, sameEnd, shrink float64) {
 	x, sp := claimIris(t)
 	all := make([]int, len(sp))
 	for i := range all {
@@ -187,7 +233,7 @@ func TestClaimSmallRho0LargerMargin(t *testing.T) {
 		atEq, fixed, l point
 	}
 	train := func(rho0 float64, epochs int) run {
-		w := claimWrap(t, claimNet(t, 16, 1, rho0))
+		w := claimWrapWith(t, claimNet(t, 16, 1, rho0), opts)
 		r := run{rho0: rho0}
 		eq := gauge.NewEquilibrium(gauge.EquilibriumOptions{})
 		hooks := &optim.Hooks{
@@ -253,12 +299,12 @@ func TestClaimSmallRho0LargerMargin(t *testing.T) {
 	// the run from 1e-3 first climbs to 1e-1 with V nearly frozen and then
 	// follows the other. 1e-2 relative (30 times the measured gap) is the
 	// line between "the same end point" and a real effect of ρ0, which at
-	// ρ0 = 10 is a factor of 2 in ρ.
-	if d := relDiff(small.fixed.rho, mid.fixed.rho); d > 1e-2 {
-		t.Errorf("after %d epochs ρ = %.5g (ρ0 = 1e-3) and %.5g (ρ0 = 1e-1) differ by %.3g relative; found earlier: the same to 3e-4", budget, small.fixed.rho, mid.fixed.rho, d)
+	// ρ0 = 10 is a factor of 2 in ρ. (Per-layer scales: sameEnd, a guard.)
+	if d := relDiff(small.fixed.rho, mid.fixed.rho); d > sameEnd {
+		t.Errorf("after %d epochs ρ = %.5g (ρ0 = 1e-3) and %.5g (ρ0 = 1e-1) differ by %.3g relative, over %.3g; found earlier: 3e-4 (global), 0.025 (per-layer)", budget, small.fixed.rho, mid.fixed.rho, d, sameEnd)
 	}
-	if d := relDiff(small.fixed.min, mid.fixed.min); d > 1e-2 {
-		t.Errorf("after %d epochs the minimum margins %.5g (ρ0 = 1e-3) and %.5g (ρ0 = 1e-1) differ by %.3g relative; found earlier: the same to 1e-4", budget, small.fixed.min, mid.fixed.min, d)
+	if d := relDiff(small.fixed.min, mid.fixed.min); d > sameEnd {
+		t.Errorf("after %d epochs the minimum margins %.5g (ρ0 = 1e-3) and %.5g (ρ0 = 1e-1) differ by %.3g relative, over %.3g; found earlier: 1e-4 (global), 0.021 (per-layer)", budget, small.fixed.min, mid.fixed.min, d, sameEnd)
 	}
 
 	if testing.Short() {
@@ -274,11 +320,11 @@ func TestClaimSmallRho0LargerMargin(t *testing.T) {
 	gapRho0, gapRho := large.fixed.rho-small.fixed.rho, math.Abs(large.l.rho-small.l.rho)
 	gapMin0, gapMin := small.fixed.min-large.fixed.min, math.Abs(large.l.min-small.l.min)
 	t.Logf("ρ0 = 10 against 1e-3: ρ gap %.4g → %.4g, minimum-margin gap %.4g → %.4g", gapRho0, gapRho, gapMin0, gapMin)
-	if !(gapRho < gapRho0/100) || relDiff(large.l.rho, small.l.rho) > 1e-2 {
-		t.Errorf("after %d epochs ρ = %.5g (ρ0 = 10) against %.5g (ρ0 = 1e-3): the gap %.3g did not close as found (from %.3g to 0.003)", long, large.l.rho, small.l.rho, gapRho, gapRho0)
+	if !(gapRho < gapRho0/shrink) || relDiff(large.l.rho, small.l.rho) > 1e-2 {
+		t.Errorf("after %d epochs ρ = %.5g (ρ0 = 10) against %.5g (ρ0 = 1e-3): the gap %.3g did not close %g-fold from %.3g as found (global to 0.003, per-layer to 0.008)", long, large.l.rho, small.l.rho, gapRho, shrink, gapRho0)
 	}
-	if !(gapMin < gapMin0/100) || relDiff(large.l.min, small.l.min) > 1e-2 {
-		t.Errorf("after %d epochs minimum margin %.5g (ρ0 = 10) against %.5g (ρ0 = 1e-3): the gap %.3g did not close as found (from %.3g to 4e-4)", long, large.l.min, small.l.min, gapMin, gapMin0)
+	if !(gapMin < gapMin0/shrink) || relDiff(large.l.min, small.l.min) > 1e-2 {
+		t.Errorf("after %d epochs minimum margin %.5g (ρ0 = 10) against %.5g (ρ0 = 1e-3): the gap %.3g did not close %g-fold from %.3g as found (global to 4e-4, per-layer to 7e-4)", long, large.l.min, small.l.min, gapMin, shrink, gapMin0)
 	}
 }
 
