@@ -340,14 +340,20 @@ type claimRun struct {
 	maxOut  float64   // max_n |out_n| on the training rows
 }
 
-func claimMinimum(t testing.TB, set, probe *data.Set[float64], normalized bool, lambda float64, seed uint64) claimRun {
+// claimMinimum trains one network of kind "plain", "normalized" (one
+// global scale) or "per-layer" (normalized with per-layer scales).
+func claimMinimum(t testing.TB, set, probe *data.Set[float64], kind string, lambda float64, seed uint64) claimRun {
 	t.Helper()
 	var m gauge.Model[float64]
 	var om optim.Model[float64]
-	if normalized {
+	switch kind {
+	case "normalized":
 		w := claimWrap(t, claimNet(t, 32, seed, 1))
 		m, om = w, w
-	} else {
+	case "per-layer":
+		w := claimWrapWith(t, claimNet(t, 32, seed, 1), normalize.Options{Scale: normalize.PerLayer})
+		m, om = w, w
+	default:
 		n := claimNet(t, 32, seed, 0)
 		m, om = n, n
 	}
@@ -435,10 +441,11 @@ func claimJackknife(a, b []claimRun, stat func(a, b []claimRun) float64) (value,
 // over-parameterized network: 4 inputs + constant feature, 32 ReLU units,
 // one output, 192 weights. The probe inputs are the other 90 rows of the
 // two species. Full-batch gradient descent, η = 0.05, 30,000 epochs, seeds
-// 1 to 8, for λ = 0, 1e-4, 1e-3 and 1e-2, on two parameterizations: the
+// 1 to 8, for λ = 0, 1e-4, 1e-3 and 1e-2, on three parameterizations: the
 // plain network from the He scheme's own scale (decay λ‖W_k‖² on every
-// layer), and the weight-normalized one with one global ρ from ρ0 = 1
-// (decay λρ²).
+// layer), the weight-normalized one with one global ρ from ρ0 = 1
+// (decay λρ², "normalized"), and the weight-normalized one with per-layer
+// scales from ρ0 = 1 (decay λΣρ_k², "per-layer").
 //
 // What was found (values when written):
 //
@@ -467,6 +474,20 @@ func claimJackknife(a, b []claimRun, stat func(a, b []claimRun) float64) (value,
 //     The minimum training margins also rise with λ and gather (plain:
 //     0.042–0.067 at λ = 0, 0.126–0.141 at 1e-3, 0.154–0.159 at 1e-2).
 //
+//   - The normalized network with per-layer scales (W_k = ρ_k·V_k, decay
+//     λΣρ_k², the default of normalize.Options), same runs:
+//
+//     λ      σ        ln ratio
+//     0      0.138
+//     1e-4   0.144    −0.04 ± 0.28
+//     1e-3   0.112     0.22 ± 0.29
+//     1e-2   0.076     0.59 ± 0.17
+//
+//     The runs start closer together than with one global scale (σ 0.138
+//     at λ = 0 against 0.208) and decay gathers them less: the claim holds
+//     significantly only at λ = 1e-2 (3.6 standard errors), which is
+//     asserted; at 1e-3 (0.7) it is measured, not asserted.
+//
 // With -short only the plain network at λ = 0 and 1e-3 is trained.
 func TestClaimSquareLossMinima(t *testing.T) {
 	x, sp := claimIris(t)
@@ -488,19 +509,19 @@ func TestClaimSquareLossMinima(t *testing.T) {
 	}
 	const seeds = 8
 	lambdas := []float64{0, 1e-4, 1e-3, 1e-2}
-	models := []bool{false, true} // normalized?
+	models := []string{"plain", "normalized", "per-layer"}
 	if testing.Short() {
-		lambdas, models = []float64{0, 1e-3}, []bool{false}
+		lambdas, models = []float64{0, 1e-3}, []string{"plain"}
 	}
-	runs := map[bool]map[float64][]claimRun{false: {}, true: {}}
-	for _, normalized := range models {
+	runs := map[string]map[float64][]claimRun{}
+	for _, kind := range models {
+		runs[kind] = map[float64][]claimRun{}
 		for _, lambda := range lambdas {
 			for seed := uint64(1); seed <= seeds; seed++ {
-				runs[normalized][lambda] = append(runs[normalized][lambda], claimMinimum(t, set, pset, normalized, lambda, seed))
+				runs[kind][lambda] = append(runs[kind][lambda], claimMinimum(t, set, pset, kind, lambda, seed))
 			}
 		}
 	}
-	name := map[bool]string{false: "plain", true: "normalized"}
 
 	t.Run("zero loss, equal margins", func(t *testing.T) {
 		// The claim's premise, a zero-loss minimum, holds when the loss is
@@ -513,7 +534,7 @@ func TestClaimSquareLossMinima(t *testing.T) {
 		// exactly (γ_n = y_n·out_n/ρ, y_n² = 1), so |ρ·γ_n − 1| ≤ √(N·L),
 		// plus the rounding of gauge's division and this product, two
 		// roundings of a value near 1, within 8ε.
-		for _, r := range runs[false][0] {
+		for _, r := range runs["plain"][0] {
 			if !(r.loss <= 1e-20) {
 				t.Errorf("plain, λ = 0, seed %d: loss %.3g after the budget, not a zero-loss minimum (found: at most 2.4e-27)", r.seed, r.loss)
 				continue
@@ -537,7 +558,7 @@ func TestClaimSquareLossMinima(t *testing.T) {
 		// are near, not at, that point (measured: mean e·out within 7% of
 		// −λ‖W_k‖²), so half the bound is asserted. Measured for λ = 1e-3:
 		// max|ρ·γ − 1| = 0.055 to 0.073 against half-bounds near 0.0033.
-		for _, r := range runs[false][1e-3] {
+		for _, r := range runs["plain"][1e-3] {
 			worst := 0.0
 			for _, g := range r.margins {
 				worst = math.Max(worst, math.Abs(r.rho*g-1))
@@ -562,25 +583,25 @@ func TestClaimSquareLossMinima(t *testing.T) {
 		// has a derivation (1% one-sided under t₇), but it was settled after
 		// that case was measured: read it as a regression guard as well.
 		logRatio := func(a, b []claimRun) float64 { return math.Log(claimSpread(a) / claimSpread(b)) }
-		for _, normalized := range models {
-			base := runs[normalized][0]
-			t.Logf("%s, λ = 0: spread %.4g", name[normalized], claimSpread(base))
+		for _, kind := range models {
+			base := runs[kind][0]
+			t.Logf("%s, λ = 0: spread %.4g", kind, claimSpread(base))
 			for _, lambda := range lambdas[1:] {
-				rs := runs[normalized][lambda]
+				rs := runs[kind][lambda]
 				v, se := claimJackknife(base, rs, logRatio)
 				t.Logf("%s, λ = %v: spread %.4g, ln(σ₀/σ_λ) = %.3g ± %.2g (%.1f SE), loss %.3g to %.3g",
-					name[normalized], lambda, claimSpread(rs), v, se, v/se, claimMinLoss(rs), claimMaxLoss(rs))
-				if lambda < 1e-3 {
+					kind, lambda, claimSpread(rs), v, se, v/se, claimMinLoss(rs), claimMaxLoss(rs))
+				if lambda < 1e-3 || kind == "per-layer" && lambda < 1e-2 {
 					// A measurement, not a check: at this budget the
 					// effect is not significant (the table above), and a
 					// check that could only pass or skip would prove
 					// nothing.
 					t.Logf("measured, not asserted: %s, λ = %v after λ·ηt = %.2g: ln(σ₀/σ_λ) = %.3g ± %.2g, %.1f SE",
-						name[normalized], lambda, lambda*0.05*30_000, v, se, v/se)
+						kind, lambda, lambda*0.05*30_000, v, se, v/se)
 					continue
 				}
 				if !(v > 3*se) {
-					t.Errorf("%s, λ = %v: ln(σ₀/σ_λ) = %.3g ± %.2g: the runs with decay are not significantly closer than with λ = 0 (found earlier: ≥ 5.0 SE)", name[normalized], lambda, v, se)
+					t.Errorf("%s, λ = %v: ln(σ₀/σ_λ) = %.3g ± %.2g: the runs with decay are not significantly closer than with λ = 0 (found earlier: ≥ 5.0 SE)", kind, lambda, v, se)
 				}
 			}
 		}
