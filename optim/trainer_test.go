@@ -372,22 +372,26 @@ func TestJoin(t *testing.T) {
 // f(x; W)/ρ with W = ρ·V as it stands then (the definition in hooks.go).
 func TestFullMarginsUseCurrentScale(t *testing.T) {
 	set := irisBinary(t)
-	w, err := normalize.Wrap(mlp(t, []int{4, 6, 1}, 3, 0.5), normalize.Options{Scale: normalize.Global})
-	if err != nil {
-		t.Fatal(err)
-	}
-	var got optim.Margins
-	var rho float64
-	h := &optim.Hooks{EpochMargins: true, Epoch: func(e *optim.EpochInfo) error { got, rho = *e.Full, e.Rho; return optim.ErrStop }}
-	train(t, w, set, optim.Settings{LearningRate: 0.1, BatchSize: 15, Hooks: h})
-	out := w.Forward(set.X, set.Rows) // syncs W = ρ·V
-	r := w.Base().Rho()
-	mean := 0.0
-	for i := range set.Rows {
-		mean += set.Y[i] * out[i] / r / float64(set.Rows)
-	}
-	// Same sums in a different order: a few ε relative.
-	if math.Abs(rho-r) > 1e-14*r || math.Abs(got.Mean-mean) > 1e-12 {
-		t.Errorf("epoch info ρ %v, margins mean %v; current weights give ρ %v, mean %v", rho, got.Mean, r, mean)
+	for name, o := range map[string]normalize.Options{
+		"global": {Scale: normalize.Global}, "per-layer": {Scale: normalize.PerLayer}, "per-unit": {PerUnit: true},
+	} {
+		w, err := normalize.Wrap(mlp(t, []int{4, 6, 1}, 3, 0.5), o)
+		if err != nil {
+			t.Fatal(err)
+		}
+		var got optim.Margins
+		var rho float64
+		h := &optim.Hooks{EpochMargins: true, Epoch: func(e *optim.EpochInfo) error { got, rho = *e.Full, e.Rho; return optim.ErrStop }}
+		train(t, w, set, optim.Settings{LearningRate: 0.1, BatchSize: 15, Hooks: h})
+		out := w.Forward(set.X, set.Rows)
+		r := w.Base().Rho()
+		mean := 0.0
+		for i := range set.Rows {
+			mean += set.Y[i] * out[i] / r / float64(set.Rows)
+		}
+		// Same sums in a different order: a few ε relative.
+		if math.Abs(rho-r) > 1e-14*r || math.Abs(got.Mean-mean) > 1e-12 {
+			t.Errorf("%s: epoch info ρ %v, margins mean %v; current weights give ρ %v, mean %v", name, rho, got.Mean, r, mean)
+		}
 	}
 }
