@@ -140,7 +140,11 @@ func ratio[T net.Float](b *testing.B, a arch) {
 			b.ReportMetric(rate("rhomb")/rate(name), "x-"+name)
 		}
 	}
-	b.ReportMetric(rate("rhomb")*a.flops()/float64(a.batch)/1e9, "rhomb-GFLOP/s")
+	gf := rate("rhomb") * a.flops() / float64(a.batch) / 1e9
+	b.ReportMetric(gf, "rhomb-GFLOP/s")
+	if p := peakOf[T](); p > 0 {
+		b.ReportMetric(gf/p, "rhomb-of-peak")
+	}
 }
 
 // BenchmarkEpochRows is one epoch of optim.Trainer on the large network
