@@ -47,7 +47,8 @@
 //	BenchmarkEpochRows     one optim.Trainer epoch at 10k to 60k rows (slow; only with RHOMB_EPOCH_ROWS=1)
 //	BenchmarkFashionEpoch  one epoch of the 60,000 Fashion-MNIST training images through optim.Trainer,
 //	                       784-256-128-10 and 784-512-512-10, batch 128 (only with RHOMB_OPENDATA;
-//	                       numpy_epoch.py is the same epoch in numpy)
+//	                       numpy_epoch.py is the same epoch in numpy); also the share of exact zeros
+//	                       after each ReLU on real rows, at the initial weights and after the epoch
 //
 // GFLOP/s counts 2mnk per product, three forward and five backward products
 // per step (the first layer's input gradient is not computed). Run with
