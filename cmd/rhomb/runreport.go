@@ -8,6 +8,7 @@ import (
 	"strings"
 
 	"github.com/rhomb/rhomb/data"
+	"github.com/rhomb/rhomb/internal/arith"
 	"github.com/rhomb/rhomb/internal/calib"
 	"github.com/rhomb/rhomb/internal/score"
 	"github.com/rhomb/rhomb/loss"
@@ -179,7 +180,7 @@ func reliabilityOf[T net.Float](saved *modelfile.Model[T], set *data.Set[T], nam
 			raw[r] = max(p1, 1-p1)
 		} else {
 			p = slices.Grow(p[:0], len(s))[:len(s)]
-			calib.Softmax(s, 1, p)
+			arith.Softmax(s, 1, p)
 			raw[r] = slices.Max(p)
 		}
 	}

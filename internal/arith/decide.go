@@ -12,8 +12,11 @@ func Sigmoid(z float64) float64 {
 	return e / (1 + e)
 }
 
-// Softmax writes softmax(s/t) into dst (len ≥ len(s)): e^{(s_j − max)/t},
-// normalized, so that nothing overflows.
+// Softmax writes softmax(s/t) into dst (len(dst) ≥ len(s)):
+// e^{(s_j − max s)/t}, normalized. Subtracting the largest score first
+// keeps exp from overflowing. t must be positive. Calibration fitting
+// (internal/calib), the run report and serving all call it, so training
+// and serving agree to the bit.
 func Softmax(s []float64, t float64, dst []float64) {
 	m := math.Inf(-1)
 	for _, v := range s {

@@ -1,6 +1,7 @@
 package calib
 
 import (
+	"github.com/rhomb/rhomb/internal/arith"
 	"math"
 	"math/big"
 	"math/rand/v2"
@@ -106,8 +107,8 @@ func TestConformalCoverage(t *testing.T) {
 			for j := range z {
 				z[j] = 1.5 * rng.NormFloat64()
 			}
-			Softmax(z, 1, truth)
-			Softmax(z, 2, probs[i*k:(i+1)*k])
+			arith.Softmax(z, 1, truth)
+			arith.Softmax(z, 2, probs[i*k:(i+1)*k])
 			u, c := rng.Float64(), 0
 			for c < k-1 && u >= truth[c] {
 				u -= truth[c]

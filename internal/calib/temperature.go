@@ -5,25 +5,6 @@ import (
 	"math"
 )
 
-// Softmax writes softmax(s/t) into dst (len(dst) ≥ len(s)):
-// e^{(s_j − max s)/t}, normalized. Subtracting the largest score first
-// keeps exp from overflowing. t must be positive; the arithmetic is the
-// serving reader's, so training and serving agree to the bit.
-func Softmax(s []float64, t float64, dst []float64) {
-	m := math.Inf(-1)
-	for _, v := range s {
-		m = max(m, v)
-	}
-	var sum float64
-	for j, v := range s {
-		dst[j] = math.Exp((v - m) / t)
-		sum += dst[j]
-	}
-	for j := range s {
-		dst[j] /= sum
-	}
-}
-
 // The range FitTemperature searches, on 1/T.
 const (
 	minInvT = 1e-4

@@ -178,12 +178,12 @@ func FitDecision[T net.Float](file *modelfile.Model[T], val *data.Set[T], o Deci
 			dst[1] = (1 + max(-1, min(1, s[0]))) / 2
 			dst[0] = 1 - dst[1]
 		case c == nil:
-			calib.Softmax(s, 1, dst)
+			arith.Softmax(s, 1, dst)
 		case two:
 			dst[1] = calib.Platt{A: c.A, B: c.B}.Prob(s[0])
 			dst[0] = 1 - dst[1]
 		default:
-			calib.Softmax(s, c.Temperature, dst)
+			arith.Softmax(s, c.Temperature, dst)
 		}
 	}
 	width := max(k, 2)
