@@ -592,28 +592,20 @@ func (u *exactUpdate[T]) Range(lo, hi int) int {
 // a time) where the processor has one, and stepScalar on the rest.
 func stepExact[T net.Float](val, grad, vel []T, lr, d, mu float64, nesterov bool) int {
 	done, nonFinite := kern.SGDStep(val, grad, vel, lr, d, mu, nesterov)
-	if nonFinite {
-		for j, v := range val[:done] {
-			if notFinite(v) {
-				// The rest is still updated, as the scalar loop would.
-				var rest []T
-				if vel != nil {
-					rest = vel[done:]
-				}
-				stepScalar(val[done:], grad[done:len(val)], rest, lr, d, mu, nesterov)
-				return j
-			}
-		}
-	}
-	if done == len(val) {
-		return -1
-	}
 	var rest []T
 	if vel != nil {
 		rest = vel[done:]
 	}
-	if b := stepScalar(val[done:], grad[done:len(val)], rest, lr, d, mu, nesterov); b >= 0 {
-		return done + b
+	bad := stepScalar(val[done:], grad[done:len(val)], rest, lr, d, mu, nesterov)
+	if nonFinite {
+		for j, v := range val[:done] {
+			if notFinite(v) {
+				return j
+			}
+		}
+	}
+	if bad >= 0 {
+		return done + bad
 	}
 	return -1
 }
