@@ -72,17 +72,24 @@ func prepare[T net.Float](c *config, stdin io.Reader) (*prepared[T], error) {
 	return &prepared[T]{table: t, pipeline: r.Pipeline, classes: r.Classes, train: r.Train, val: r.Val, test: r.Test, unseen: r.Unseen, sources: sources}, nil
 }
 
+// readIDXPair reads the two files of an images/labels pair.
+func readIDXPair(images, labels string) (img, lab *data.IDX, err error) {
+	if img, err = data.ReadIDXFile(images); err != nil {
+		return nil, nil, dataError{err}
+	}
+	if lab, err = data.ReadIDXFile(labels); err != nil {
+		return nil, nil, dataError{err}
+	}
+	return img, lab, nil
+}
+
 // readIDXTable reads an images/labels pair as a table of pixel columns
 // (byte/255, named p0, p1, …), which then goes through the same
 // preprocessing as a CSV file's numeric columns.
 func readIDXTable(images, labels string) (*data.Table, error) {
-	img, err := data.ReadIDXFile(images)
+	img, lab, err := readIDXPair(images, labels)
 	if err != nil {
-		return nil, dataError{err}
-	}
-	lab, err := data.ReadIDXFile(labels)
-	if err != nil {
-		return nil, dataError{err}
+		return nil, err
 	}
 	t, err := data.IDXTable(img, lab)
 	if err != nil {
@@ -95,13 +102,9 @@ func readIDXTable(images, labels string) (*data.Table, error) {
 // models made before image data went through the preprocessing (their
 // files hold no pipeline).
 func readIDXSet[T net.Float](images, labels string) (*data.Set[T], error) {
-	img, err := data.ReadIDXFile(images)
+	img, lab, err := readIDXPair(images, labels)
 	if err != nil {
-		return nil, dataError{err}
-	}
-	lab, err := data.ReadIDXFile(labels)
-	if err != nil {
-		return nil, dataError{err}
+		return nil, err
 	}
 	classes := 0
 	for _, l := range lab.Data {
