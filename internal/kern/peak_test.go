@@ -1,8 +1,6 @@
 package kern
 
 import (
-	"fmt"
-	"runtime"
 	"testing"
 	"time"
 )
@@ -24,28 +22,5 @@ func TestPeak(t *testing.T) {
 	}
 	if z, _ := Peak(0, time.Millisecond); z != 0 {
 		t.Errorf("Peak on 0 goroutines = %v, want 0", z)
-	}
-}
-
-// BenchmarkPeak is the processor's peak rate on one goroutine and on
-// GOMAXPROCS goroutines (Peak), float64 and float32 (twice float64). The
-// kernels' GFLOP/s in BenchmarkGemm and in package bench are read as
-// fractions of it, measured in the same run.
-func BenchmarkPeak(b *testing.B) {
-	if loop, _, _ := peakLoop(); loop == nil {
-		b.Skip("no register-only FMA loop in this build")
-	}
-	for _, procs := range []int{1, runtime.GOMAXPROCS(0)} {
-		b.Run(fmt.Sprintf("goroutines=%d", procs), func(b *testing.B) {
-			var best float64
-			var isa string
-			for range b.N {
-				g, name := Peak(procs, 50*time.Millisecond)
-				best, isa = max(best, g), name
-			}
-			b.ReportMetric(best, "GFLOP/s-f64")
-			b.ReportMetric(2*best, "GFLOP/s-f32")
-			b.Logf("isa %s", isa)
-		})
 	}
 }
