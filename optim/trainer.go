@@ -611,7 +611,12 @@ func stepExact[T net.Float](val, grad, vel []T, lr, d, mu float64, nesterov bool
 }
 
 // stepScalar is the noise-free step element by element, one variant per
-// case so that the common ones run without per-element branches.
+// case so that the common ones run without per-element branches. Every
+// product is wrapped in an explicit float64 conversion: the conversion
+// rounds it, which forbids the compiler to fuse it into a multiply-add
+// (the Go specification, "Floating-point operators"; amd64 builds with
+// GOAMD64=v3 fuse otherwise), so the bits stay those of the vector loop
+// on every build.
 func stepScalar[T net.Float](val, grad, vel []T, lr, d, mu float64, nesterov bool) int {
 	bad := -1
 	grad = grad[:len(val)]
@@ -619,7 +624,7 @@ func stepScalar[T net.Float](val, grad, vel []T, lr, d, mu float64, nesterov boo
 	case vel == nil:
 		for j, gj := range grad {
 			theta := float64(val[j])
-			theta -= lr * (float64(gj) + d*theta)
+			theta -= float64(lr * (float64(gj) + float64(d*theta)))
 			nv := T(theta)
 			if notFinite(nv) && bad < 0 {
 				bad = j
@@ -630,11 +635,11 @@ func stepScalar[T net.Float](val, grad, vel []T, lr, d, mu float64, nesterov boo
 		vel = vel[:len(val)]
 		for j, gj := range grad {
 			theta := float64(val[j])
-			g := float64(gj) + d*theta
-			vj := mu*float64(vel[j]) + g
+			g := float64(gj) + float64(d*theta)
+			vj := float64(mu*float64(vel[j])) + g
 			vel[j] = T(vj)
-			g += mu * vj
-			theta -= lr * g
+			g += float64(mu * vj)
+			theta -= float64(lr * g)
 			nv := T(theta)
 			if notFinite(nv) && bad < 0 {
 				bad = j
@@ -645,11 +650,11 @@ func stepScalar[T net.Float](val, grad, vel []T, lr, d, mu float64, nesterov boo
 		vel = vel[:len(val)]
 		for j, gj := range grad {
 			theta := float64(val[j])
-			g := float64(gj) + d*theta
-			vj := mu*float64(vel[j]) + g
+			g := float64(gj) + float64(d*theta)
+			vj := float64(mu*float64(vel[j])) + g
 			vel[j] = T(vj)
 			g = vj
-			theta -= lr * g
+			theta -= float64(lr * g)
 			nv := T(theta)
 			if notFinite(nv) && bad < 0 {
 				bad = j
@@ -665,8 +670,8 @@ func stepNoisy[T net.Float](val, grad []T, lr, d, sigma float64, rng *rand.Rand)
 	grad = grad[:len(val)]
 	for j, gj := range grad {
 		theta := float64(val[j])
-		theta -= lr * (float64(gj) + d*theta)
-		theta += sigma * rng.NormFloat64()
+		theta -= float64(lr * (float64(gj) + float64(d*theta)))
+		theta += float64(sigma * rng.NormFloat64())
 		nv := T(theta)
 		if notFinite(nv) && bad < 0 {
 			bad = j
@@ -681,17 +686,17 @@ func stepMomentum[T net.Float](val, grad, vel []T, lr, d, mu float64, nesterov b
 	grad, vel = grad[:len(val)], vel[:len(val)]
 	for j, gj := range grad {
 		theta := float64(val[j])
-		g := float64(gj) + d*theta
-		vj := mu*float64(vel[j]) + g
+		g := float64(gj) + float64(d*theta)
+		vj := float64(mu*float64(vel[j])) + g
 		vel[j] = T(vj)
 		if nesterov {
-			g += mu * vj
+			g += float64(mu * vj)
 		} else {
 			g = vj
 		}
-		theta -= lr * g
+		theta -= float64(lr * g)
 		if sigma > 0 {
-			theta += sigma * rng.NormFloat64()
+			theta += float64(sigma * rng.NormFloat64())
 		}
 		nv := T(theta)
 		if notFinite(nv) && bad < 0 {

@@ -19,17 +19,17 @@ func refUpdate[T Float](val, grad, vel []T, lr, d, mu float64, nesterov bool) in
 	for j := range val {
 		theta := float64(val[j])
 		if vel == nil {
-			theta -= lr * (float64(grad[j]) + d*theta)
+			theta -= float64(lr * (float64(grad[j]) + float64(d*theta)))
 		} else {
-			g := float64(grad[j]) + d*theta
-			vj := mu*float64(vel[j]) + g
+			g := float64(grad[j]) + float64(d*theta)
+			vj := float64(mu*float64(vel[j])) + g
 			vel[j] = T(vj)
 			if nesterov {
-				g += mu * vj
+				g += float64(mu * vj)
 			} else {
 				g = vj
 			}
-			theta -= lr * g
+			theta -= float64(lr * g)
 		}
 		nv := T(theta)
 		if (math.IsNaN(float64(nv)) || math.IsInf(float64(nv), 0)) && bad < 0 {
