@@ -25,9 +25,13 @@
 // dθ = −∇L dt + √(2T) dB, whose stationary density is ∝ exp(−L/T). Random
 // numbers come from two PCG streams seeded by Settings.Seed, one for batch
 // order and one for noise. The noise stream gives one key per step; each
-// block of 1,024 elements of a parameter draws ξ from its own PCG stream
-// seeded from that key (through SplitMix64), so both cores can draw at
-// once and the bits do not depend on which core drew which block.
+// block of 1,024 elements of a parameter has a seed made from that key
+// (through SplitMix64), and element j of a block draws ξ_j from the
+// SplitMix64 output at position j by the ziggurat method (Marsaglia &
+// Tsang, 2000), eight at a time where the processor has AVX-512. Both
+// cores draw at once and the bits do not depend on which core drew which
+// block. With float32 weights the step and the noise are each rounded to
+// float32.
 //
 // A loss, gradient or updated weight that is NaN or infinite ends the run
 // with a *NonFiniteError naming the step and the parameter; the weights,

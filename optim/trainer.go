@@ -144,11 +144,6 @@ type Trainer[T net.Float] struct {
 
 	batchSrc, noiseSrc *rand.PCG
 	batchRNG, noiseRNG *rand.Rand
-	// blockSrc and blockRNG are the noise streams of the blocks of a
-	// parameter (noiseBlock elements each), reseeded every step; nil
-	// without noise.
-	blockSrc []rand.PCG
-	blockRNG []*rand.Rand
 
 	vel, saved, savedVel [][]T
 	bx, by, gout, fnorm  []T
@@ -191,18 +186,6 @@ func NewTrainer[T net.Float](m Model[T], l loss.Func[T], set *data.Set[T], s Set
 	t.batchSrc = rand.NewPCG(s.Seed, 0x62617463) // "batc"
 	t.noiseSrc = rand.NewPCG(s.Seed, 0x6e6f6973) // "nois"
 	t.batchRNG, t.noiseRNG = rand.New(t.batchSrc), rand.New(t.noiseSrc)
-	if s.Temperature > 0 {
-		most := 0
-		for _, p := range t.params {
-			most = max(most, len(p.Value))
-		}
-		blocks := (most + noiseBlock - 1) / noiseBlock
-		t.blockSrc = make([]rand.PCG, blocks)
-		t.blockRNG = make([]*rand.Rand, blocks)
-		for i := range t.blockRNG {
-			t.blockRNG[i] = rand.New(&t.blockSrc[i])
-		}
-	}
 	for _, p := range t.params {
 		if s.Momentum > 0 {
 			t.vel = append(t.vel, make([]T, len(p.Value)))
@@ -399,7 +382,6 @@ func (t *Trainer[T]) update(lr float64) error {
 			step: exactUpdate[T]{lr: lr, d: d, mu: mu, nesterov: t.s.Nesterov}}
 		if sigma > 0 {
 			g.sigma, g.key, g.param = sigma, key, uint64(i)
-			g.src, g.rng = t.blockSrc, t.blockRNG
 		}
 		g.gradBad.Store(int64(len(p.Value)))
 		j := kern.ParallelRange(len(p.Value), g)
@@ -428,8 +410,8 @@ func (t *Trainer[T]) update(lr float64) error {
 	return nil
 }
 
-// noiseBlock is the number of elements that share one noise stream in a
-// step. It divides kern.RangeChunk, so the blocks are the same however
+// noiseBlock is the number of elements that share one noise seed in a
+// step (noise.go). It divides kern.RangeChunk, so the blocks are the same however
 // ParallelRange splits a parameter, and the bits do not depend on the
 // number of threads.
 const noiseBlock = kern.RangeChunk / 8
@@ -447,12 +429,9 @@ type guardedUpdate[T net.Float] struct {
 	saved, savedVel []T
 	step            exactUpdate[T]
 	gradBad         atomic.Int64
-	// With noise (sigma > 0): the step's key, the parameter's index, and
-	// the streams of its blocks.
+	// With noise (sigma > 0): the step's key and the parameter's index.
 	sigma      float64
 	key, param uint64
-	src        []rand.PCG
-	rng        []*rand.Rand
 }
 
 // keep copies the values and velocities of [lo, hi) aside.
@@ -497,22 +476,27 @@ func (g *guardedUpdate[T]) Range(lo, hi int) int {
 	return -1
 }
 
-// noisy steps [lo, hi) block by block, each block with its own stream
-// seeded from (key, param, block), and returns the first bad index
-// relative to lo, or −1. lo is a multiple of noiseBlock (kern.RangeChunk).
+// noisy steps [lo, hi) block by block: the noise-free step (stepExact),
+// then σ times the block's standard normal numbers (fillNormals, seeded
+// from (key, param, block)) added (addNoise), each rounded to T. It
+// returns the first bad index relative to lo, or −1. lo is a multiple of
+// noiseBlock (kern.RangeChunk).
 func (g *guardedUpdate[T]) noisy(lo, hi int, vel []T) int {
 	u := &g.step
 	bad := -1
+	var xi [noiseBlock]float64
+	seed := splitMix(g.key ^ splitMix(g.param+1))
 	for s := lo; s < hi; s += noiseBlock {
 		e := min(s+noiseBlock, hi)
 		k := s / noiseBlock
-		seed := splitMix(g.key ^ splitMix(g.param+1))
-		g.src[k].Seed(seed, splitMix(seed^uint64(k)))
-		var j int
-		if vel == nil {
-			j = stepNoisy(g.val[s:e], g.grad[s:e], u.lr, u.d, g.sigma, g.rng[k])
-		} else {
-			j = stepMomentum(g.val[s:e], g.grad[s:e], vel[s-lo:e-lo], u.lr, u.d, u.mu, u.nesterov, g.sigma, g.rng[k])
+		var v []T
+		if vel != nil {
+			v = vel[s-lo : e-lo]
+		}
+		j := stepExact(g.val[s:e], g.grad[s:e], v, u.lr, u.d, u.mu, u.nesterov)
+		fillNormals(xi[:e-s], splitMix(seed^uint64(k)))
+		if jn := addNoise(g.val[s:e], xi[:e-s], g.sigma); jn >= 0 && (j < 0 || jn < j) {
+			j = jn
 		}
 		if j >= 0 && bad < 0 {
 			bad = s - lo + j
@@ -535,15 +519,14 @@ func splitMix(x uint64) uint64 {
 // The update loops. Each computes, per element and in float64,
 //
 //	g ← grad + d·θ;  v ← μv + g;  g ← v (heavy ball) or g + μv (Nesterov)
-//	θ ← θ − ηg;  θ ← θ + σξ
+//	θ ← θ − ηg
 //
-// in that order, so every variant gives the bits the general one would;
-// they exist so that the common cases run without per-element branches.
-// All run on the workers of internal/kern for large parameters, in
-// independent chunks; the noisy ones draw from one stream per block
-// (guardedUpdate.noisy).
-// Each returns the index of the first updated value that is not finite,
-// or −1.
+// in that order, rounds θ (and v) to T, and, with noise, then adds σξ
+// in float64 and rounds to T again (addNoise, guardedUpdate.noisy). The
+// variants exist so that the common cases run without per-element
+// branches; all run on the workers of internal/kern for large
+// parameters, in independent chunks. Each returns the index of the first
+// updated value that is not finite, or −1.
 
 // ExactStep is the trainer's noise-free update of one parameter, for a
 // program that runs its own loop (a benchmark, say): in float64 per
@@ -661,48 +644,6 @@ func stepScalar[T net.Float](val, grad, vel []T, lr, d, mu float64, nesterov boo
 			}
 			val[j] = nv
 		}
-	}
-	return bad
-}
-
-func stepNoisy[T net.Float](val, grad []T, lr, d, sigma float64, rng *rand.Rand) int {
-	bad := -1
-	grad = grad[:len(val)]
-	for j, gj := range grad {
-		theta := float64(val[j])
-		theta -= float64(lr * (float64(gj) + float64(d*theta)))
-		theta += float64(sigma * rng.NormFloat64())
-		nv := T(theta)
-		if notFinite(nv) && bad < 0 {
-			bad = j
-		}
-		val[j] = nv
-	}
-	return bad
-}
-
-func stepMomentum[T net.Float](val, grad, vel []T, lr, d, mu float64, nesterov bool, sigma float64, rng *rand.Rand) int {
-	bad := -1
-	grad, vel = grad[:len(val)], vel[:len(val)]
-	for j, gj := range grad {
-		theta := float64(val[j])
-		g := float64(gj) + float64(d*theta)
-		vj := float64(mu*float64(vel[j])) + g
-		vel[j] = T(vj)
-		if nesterov {
-			g += float64(mu * vj)
-		} else {
-			g = vj
-		}
-		theta -= float64(lr * g)
-		if sigma > 0 {
-			theta += float64(sigma * rng.NormFloat64())
-		}
-		nv := T(theta)
-		if notFinite(nv) && bad < 0 {
-			bad = j
-		}
-		val[j] = nv
 	}
 	return bad
 }

@@ -95,3 +95,50 @@ func SGDStep[T Float](val, grad, vel []T, lr, d, mu float64, nesterov bool) (don
 	}
 	return 0, false
 }
+
+// NormalFast runs the vector part of optim's Gaussian draws for the
+// Langevin step (the rule is stated and tested there, at normalAt) over
+// the longest prefix of dst whose length is a multiple of 8, where the
+// processor has AVX-512: for element j, u = SplitMix64(seed + j·γ) with γ
+// the SplitMix64 increment, strip i = u & 1023, J = the high 32 bits of u
+// as a signed integer, dst[j] = float64(J)·w[i], and bit j%8 of
+// miss[j/8] is set where |J| ≥ k[i] (the ziggurat's slow cases, which the
+// caller redraws; their bits are otherwise 0). It returns how many
+// leading elements it drew: 0 without the vector unit. miss must hold at
+// least len(dst)/8 bytes.
+func NormalFast(dst []float64, seed uint64, w *[1024]float64, k *[1024]int64, miss []uint8) int {
+	if !useNormal {
+		return 0
+	}
+	n := len(dst) &^ 7
+	if n == 0 {
+		return 0
+	}
+	_ = miss[n/8-1]
+	normalAVX512(&dst[0], n, seed, w, k, &miss[0])
+	return n
+}
+
+// AddNoise runs the vector part of optim's noise step: val[j] = T(val[j]
+// + σ·xi[j]), the product and the sum each rounded in float64, over the
+// longest prefix of val whose length is a multiple of 4, where the
+// processor has the vector unit. It returns how many leading elements it
+// updated (0 without it) and whether any of their new values is not
+// finite. xi must be at least as long as val.
+func AddNoise[T Float](val []T, xi []float64, sigma float64) (done int, nonFinite bool) {
+	if !useVector {
+		return 0, false
+	}
+	done = len(val) &^ 3
+	if done == 0 {
+		return 0, false
+	}
+	xi = xi[:done]
+	switch v := any(val).(type) {
+	case []float32:
+		return done, addNoiseF32(&v[0], &xi[0], done, sigma)
+	case []float64:
+		return done, addNoiseF64(&v[0], &xi[0], done, sigma)
+	}
+	return 0, false
+}

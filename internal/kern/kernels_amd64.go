@@ -126,6 +126,8 @@ func transpose4x4F64(src *float64, lds int, dst *float64, ldd int)
 var (
 	useTranspose = hasAVX2()
 	useVector    = hasAVX2()
+	// useNormal says whether NormalFast may use normalAVX512.
+	useNormal = hasAVX512()
 )
 
 // The vector loops of elementwise.go, over n elements, n a multiple of
@@ -213,3 +215,14 @@ func sgdF32(val, grad, vel *float32, n int, lr, d, mu float64, mode int) (nonFin
 
 //go:noescape
 func sgdF64(val, grad, vel *float64, n int, lr, d, mu float64, mode int) (nonFinite bool)
+
+// The vector loops of NormalFast and AddNoise (normal_amd64.s).
+//
+//go:noescape
+func normalAVX512(dst *float64, n int, seed uint64, w *[1024]float64, k *[1024]int64, miss *uint8)
+
+//go:noescape
+func addNoiseF64(val, xi *float64, n int, sigma float64) (nonFinite bool)
+
+//go:noescape
+func addNoiseF32(val *float32, xi *float64, n int, sigma float64) (nonFinite bool)

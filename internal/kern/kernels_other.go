@@ -14,6 +14,7 @@ func available32() []microKernel[float32] { return []microKernel[float32]{generi
 var (
 	useTranspose = false
 	useVector    = false
+	useNormal    = false
 )
 
 func reluF32(x, y *float32, n int)      { panic("kern: no assembly") }
@@ -37,3 +38,11 @@ func sgdF32(val, grad, vel *float32, n int, lr, d, mu float64, mode int) bool {
 func sgdF64(val, grad, vel *float64, n int, lr, d, mu float64, mode int) bool {
 	panic("kern: no assembly")
 }
+
+func normalAVX512(dst *float64, n int, seed uint64, w *[1024]float64, k *[1024]int64, miss *uint8) {
+	panic("kern: no assembly")
+}
+
+func addNoiseF64(val, xi *float64, n int, sigma float64) bool { panic("kern: no assembly") }
+
+func addNoiseF32(val *float32, xi *float64, n int, sigma float64) bool { panic("kern: no assembly") }
