@@ -153,6 +153,19 @@ func gen(b *bytes.Buffer, k kernel, strided bool) {
 		p("\tMOVQ ldb+%d(FP), R10", ldbOff)
 		p("\tSHLQ $%d, R10", map[int]int{4: 2, 8: 3}[sz])
 	}
+	// Ask for C's rows now, so that the epilogue, which reads and writes
+	// them, does not wait on memory: C's rows lie a row stride apart
+	// (often a power of two), where the hardware prefetchers see no
+	// stream.
+	p("\tMOVQ DI, R9")
+	for r := range k.mr {
+		for off := 0; off < k.nv*k.vbytes(); off += 64 {
+			p("\tPREFETCHT0 %d(R9)", off)
+		}
+		if r < k.mr-1 {
+			p("\tADDQ DX, R9")
+		}
+	}
 	for i := range nacc {
 		p("\tVXORP%s %s, %s, %s", k.sfx()[1:], k.reg(i), k.reg(i), k.reg(i))
 	}
