@@ -11,8 +11,8 @@
 // and columns of op(B) are copied ("packed") into contiguous panels, mr
 // rows or nr columns wide, laid out in the order a micro-kernel reads them;
 // the micro-kernel then computes an mr×nr block of C in registers. The
-// packed panels of a tile fit the processor's second-level cache
-// (mcMax·kcBlock + kcBlock·ncMax elements, at most 1.5 MiB in float64), the
+// packed block of op(A) of a tile (mcMax·kcBlock elements, at most 768 KiB
+// in float64) fits in half the processor's second-level cache, and the
 // kcBlock×nr panel of op(B) that a micro-kernel sweeps over many blocks of
 // rows stays in the first-level cache.
 //
@@ -80,9 +80,7 @@ const (
 	// steps keep a 256×nr panel of op(B) in a 32 KiB first-level cache for
 	// the AVX2 kernels (256·8·8 bytes in float64, 256·16·4 in float32).
 	kcBlock = arith.KBlock
-	// mcMax and ncMax bound a tile's rows and columns, so that its packed
-	// panels fit a second-level cache of 1 MiB or more.
-	mcMax = 192
+	// ncMax bounds a tile's columns (and tileRows its rows).
 	ncMax = 512
 	// parallelFlops is the number of multiply-adds below which a product
 	// stays on the caller's goroutine: 2^18 take about 10 µs on one core
@@ -290,14 +288,14 @@ var (
 )
 
 // plan chooses the tile size for procs goroutines: among tilings with
-// tiles at most mcMax×ncMax (rounded to whole blocks), the one with the
+// tiles at most tileRows()×ncMax (rounded to whole blocks), the one with the
 // least estimated time, counting waves of procs tiles, each costing its
 // padded area plus its packing (16 multiply-adds per packed element is a
 // judgement of the relative cost of a scalar copy and a vector FMA).
 func plan(m, n, mr, nr, procs int) (tm, tn int) {
 	cdiv := func(x, y int) int { return (x + y - 1) / y }
 	up := func(x, y int) int { return cdiv(x, y) * y }
-	m0, n0 := cdiv(m, mcMax), cdiv(n, ncMax)
+	m0, n0 := cdiv(m, tileRows()), cdiv(n, ncMax)
 	if procs == 1 {
 		// The fewest tiles: every tiling does the same work, and fewer
 		// tiles pack less.
