@@ -11,7 +11,7 @@
 // and columns of op(B) are copied ("packed") into contiguous panels, mr
 // rows or nr columns wide, laid out in the order a micro-kernel reads them;
 // the micro-kernel then computes an mr×nr block of C in registers. The
-// packed block of op(A) of a tile (mcMax·kcBlock elements, at most 768 KiB
+// packed block of op(A) of a tile (tileRows()·kcBlock elements, at most 768 KiB
 // in float64) fits in half the processor's second-level cache, and the
 // kcBlock×nr panel of op(B) that a micro-kernel sweeps over many blocks of
 // rows stays in the first-level cache.
