@@ -68,7 +68,6 @@ import (
 	"sync"
 	"sync/atomic"
 	"time"
-	"unsafe"
 )
 
 // Float is the set of element types rhomb computes in.
@@ -620,8 +619,8 @@ var blocks32, blocks64 = []int{8, 4}, []int{4}
 
 // transposeRun transposes nb side-by-side tb×tb blocks: block q, at
 // src[q·tb:] (row stride lds), to dst[q·tb·ldd:] (row stride ldd). The
-// bounds are checked once for the whole run and the type switched on
-// once: per 4×4 block, a check and a switch cost as much as the transpose.
+// bounds are checked once for the whole run, and one assembly call does
+// every block: per 4×4 block, a call costs as much as the transpose.
 func transposeRun[T Float](src []T, lds int, dst []T, ldd, tb, nb int) {
 	if nb == 0 {
 		return
@@ -630,22 +629,15 @@ func transposeRun[T Float](src []T, lds int, dst []T, ldd, tb, nb int) {
 	case []float32:
 		d := any(dst).([]float32)
 		_, _ = s[(tb-1)*lds+nb*tb-1], d[(nb*tb-1)*ldd+tb-1] // bounds, checked once
-		ps, pd := unsafe.Pointer(&s[0]), unsafe.Pointer(&d[0])
-		for q := range nb {
-			sp, dp := (*float32)(unsafe.Add(ps, q*tb*4)), (*float32)(unsafe.Add(pd, q*tb*ldd*4))
-			if tb == 8 {
-				transpose8x8F32(sp, lds, dp, ldd)
-			} else {
-				transpose4x4F32(sp, lds, dp, ldd)
-			}
+		if tb == 8 {
+			transpose8x8F32(&s[0], lds, &d[0], ldd, nb)
+		} else {
+			transpose4x4F32(&s[0], lds, &d[0], ldd, nb)
 		}
 	case []float64:
 		d := any(dst).([]float64)
 		_, _ = s[3*lds+nb*4-1], d[(nb*4-1)*ldd+3]
-		ps, pd := unsafe.Pointer(&s[0]), unsafe.Pointer(&d[0])
-		for q := range nb {
-			transpose4x4F64((*float64)(unsafe.Add(ps, q*32)), lds, (*float64)(unsafe.Add(pd, q*4*ldd*8)), ldd)
-		}
+		transpose4x4F64(&s[0], lds, &d[0], ldd, nb)
 	}
 }
 

@@ -109,17 +109,19 @@ func kernAVX512F32m4n32S(kc int, a, b, c *float32, ldc int, alpha, beta float32,
 //go:noescape
 func kernAVX2F32m8n8S(kc int, a, b, c *float32, ldc int, alpha, beta float32, flags uintptr, lda, ldb int)
 
-// transpose8x8F32 and transpose4x4F64 write the transpose of a square
-// block: dst[l·ldd + r] = src[r·lds + l]. They need AVX (implied by AVX2).
+// transpose8x8F32, transpose4x4F32 and transpose4x4F64 write the
+// transposes of nb square blocks side by side, in one call: block q's
+// dst[(q·tb + l)·ldd + r] = src[r·lds + q·tb + l]. They need AVX (implied
+// by AVX2).
 //
 //go:noescape
-func transpose8x8F32(src *float32, lds int, dst *float32, ldd int)
+func transpose8x8F32(src *float32, lds int, dst *float32, ldd, nb int)
 
 //go:noescape
-func transpose4x4F32(src *float32, lds int, dst *float32, ldd int)
+func transpose4x4F32(src *float32, lds int, dst *float32, ldd, nb int)
 
 //go:noescape
-func transpose4x4F64(src *float64, lds int, dst *float64, ldd int)
+func transpose4x4F64(src *float64, lds int, dst *float64, ldd, nb int)
 
 // useTranspose reports whether pack may use the transposes above, and
 // useVector whether ReLU and ReLUMask may use their vector loops.

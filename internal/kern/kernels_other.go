@@ -22,11 +22,11 @@ func reluF64(x, y *float64, n int)      { panic("kern: no assembly") }
 func maskF32(x, dy, dx *float32, n int) { panic("kern: no assembly") }
 func maskF64(x, dy, dx *float64, n int) { panic("kern: no assembly") }
 
-func transpose8x8F32(src *float32, lds int, dst *float32, ldd int) { panic("kern: no assembly") }
+func transpose8x8F32(src *float32, lds int, dst *float32, ldd, nb int) { panic("kern: no assembly") }
 
-func transpose4x4F32(src *float32, lds int, dst *float32, ldd int) { panic("kern: no assembly") }
+func transpose4x4F32(src *float32, lds int, dst *float32, ldd, nb int) { panic("kern: no assembly") }
 
-func transpose4x4F64(src *float64, lds int, dst *float64, ldd int) { panic("kern: no assembly") }
+func transpose4x4F64(src *float64, lds int, dst *float64, ldd, nb int) { panic("kern: no assembly") }
 
 // Without assembly there is no register-only loop to measure a peak with.
 func peakLoop() (loop func(int), lanes int, isa string) { return nil, 0, "" }
