@@ -19,7 +19,7 @@ import (
 // 1024 strips (Marsaglia & Tsang, "The Ziggurat Method for Generating
 // Random Variables", Journal of Statistical Software 5(8), 2000): strip
 // i = u & 1023, J = the high 32 bits of u as a signed integer, x = J·w_i,
-// and x is the number when |J| < k_i, about 99.3% of draws. The rest fall
+// and x is the number when |J| < k_i, about 99.6% of draws. The rest fall
 // in a wedge or the tail and are settled as the method says, with further
 // words from a SplitMix64 sequence seeded with u (zigSlow). Element j
 // depends on (s, j) alone, so the AVX-512 loop of internal/kern draws
@@ -37,7 +37,7 @@ const golden = 0x9e3779b97f4a7c15
 // (the base strip with the tail). Both were found by bisection and the
 // closed form, and TestZigguratStrips finds them again. 1024 strips
 // rather than the 128 or 256 of Marsaglia & Tsang: the vector loop costs
-// the same, and only 0.7% of draws take the slow scalar path (2.7% with
+// the same, and only 0.4% of draws take the slow scalar path (2.7% with
 // 128), at 24 KiB of tables.
 const (
 	zigStrips = 1024
