@@ -4,23 +4,33 @@ import (
 	"os"
 	"strconv"
 	"strings"
-	"sync"
+	"sync/atomic"
 )
 
 // tileRows bounds a tile's rows, so that the tile's packed block of op(A)
 // (rows × kcBlock elements) fits in half the second-level cache: 192 rows
 // (384 KiB in float64) for a cache of 1 MiB, 384 rows where it holds 2 MiB
 // or more. Fewer row tiles pack op(B) fewer times: on a 2 MiB cache 384
-// rows ran 1024³ products 8–11% faster than 192 on one core and did not
-// slow the training step (bench, interleaved builds; see the README). The
-// size is read once, from Linux's sysfs; elsewhere, or when it cannot be
-// read, 192.
-var tileRows = sync.OnceValue(func() int {
-	if l2Bytes("/sys/devices/system/cpu/cpu0/cache") >= 2<<20 {
-		return 384
+// rows ran 1024³ float64 products 8–11% faster than 192 on one core and
+// did not slow the training step (bench, interleaved builds; see the
+// README). The size is read once, on first use, from Linux's sysfs;
+// elsewhere, or when it cannot be read, 192. (A plain atomic, not a
+// sync.OnceValue: that allocates when the package initializes, and the
+// Fashion-MNIST epoch turned out to run up to 20% slower or faster with
+// the heap laid out differently — see DEVELOPERS.md.)
+func tileRows() int {
+	if r := tileRowsMemo.Load(); r != 0 {
+		return int(r)
 	}
-	return 192
-})
+	r := 192
+	if l2Bytes("/sys/devices/system/cpu/cpu0/cache") >= 2<<20 {
+		r = 384
+	}
+	tileRowsMemo.Store(int32(r))
+	return r
+}
+
+var tileRowsMemo atomic.Int32
 
 // l2Bytes returns the size of the second-level data or unified cache
 // that Linux describes under dir (index0, index1, … with files level,
