@@ -40,7 +40,11 @@
 //	                       "of-peak", its fraction of the peak measured once in the same run
 //	BenchmarkStepBlas      the step with gonum's BLAS (Sgemm/Dgemm) and loops, float32 and float64
 //	BenchmarkRatio         rhomb and both gonum baselines interleaved in one operation; reports
-//	                       each one's samples/s and rhomb's speed-up ("x-blas", "x-mat")
+//	                       each one's samples/s and rhomb's speed-up ("x-blas", "x-mat"). Each
+//	                       rhomb step there follows a gonum step several times longer, so it
+//	                       starts with cold caches and parked workers: 25–35% below
+//	                       BenchmarkStep's figure on 2026-12-03. Compare rhomb with numpy by
+//	                       BenchmarkStep, which like numpy_step.py times steps back to back
 //	BenchmarkStepProducts  the eight matrix products of a step alone, rhomb and gonum
 //	BenchmarkProduct       each of those products alone (op=fwd1-128x512x784, ...)
 //	BenchmarkGemmSquare    C = A·Bᵀ on square sizes 64 to 1024, rhomb and gonum
