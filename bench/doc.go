@@ -42,7 +42,7 @@
 //	BenchmarkRatio         rhomb and both gonum baselines interleaved in one operation; reports
 //	                       each one's samples/s and rhomb's speed-up ("x-blas", "x-mat"). Each
 //	                       rhomb step there follows a gonum step several times longer, so it
-//	                       starts with cold caches and parked workers: 25–35% below
+//	                       starts with cold caches and parked workers: 14–30% below
 //	                       BenchmarkStep's figure on 2026-12-03. Compare rhomb with numpy by
 //	                       BenchmarkStep, which like numpy_step.py times steps back to back
 //	BenchmarkStepProducts  the eight matrix products of a step alone, rhomb and gonum
