@@ -28,7 +28,8 @@
 //
 // Large products, and large weight updates (Update), are spread over a
 // fixed pool of workers that live for the whole process; each worker
-// claims whole tiles (or chunks of an update), and between products
+// claims whole tiles (or chunks of an update), the caller from the front
+// and the workers from the back (job.claim), and between products
 // polls for the next one for spinFor before parking, so that the products
 // of one training step do not each pay a wake-up. Small products, and every
 // product when GOMAXPROCS is 1, run on the caller's goroutine; they take
@@ -243,13 +244,14 @@ type job[T Float] struct {
 	direct      bool // small: read op(A) and op(B) in place where their layout allows
 	tm, tn      int  // tile size
 	tilesAcross int
-	tiles       int64
-	next        atomic.Int64
-	busy        atomic.Int32 // helpers still running
-	wg          sync.WaitGroup
-	loop        Ranger // set while the pool runs a ParallelRange instead
-	loopN       int
-	bad         atomic.Int64 // an Update's smallest non-finite index so far
+	// span holds the tiles (or chunks) not yet claimed: the first in its
+	// low 32 bits, one past the last in its high 32 bits (claim).
+	span  atomic.Uint64
+	busy  atomic.Int32 // helpers still running
+	wg    sync.WaitGroup
+	loop  Ranger // set while the pool runs a ParallelRange instead
+	loopN int
+	bad   atomic.Int64 // an Update's smallest non-finite index so far
 }
 
 // scratch is one goroutine's packing buffers.
@@ -335,7 +337,7 @@ func gemm[T Float](p *pool[T], mk microKernel[T], tA, tB bool, m, n, k int, alph
 		}
 		var j job[T]
 		j.set(mk, tA, tB, m, n, k, alpha, a, lda, b, ldb, beta, c, ldc, flags, direct, tm, tn, across, tiles)
-		j.run(s)
+		j.run(s, true)
 		p.spare.Put(s)
 		return
 	}
@@ -353,7 +355,7 @@ func gemm[T Float](p *pool[T], mk microKernel[T], tA, tB bool, m, n, k int, alph
 			p.wake <- nil
 		}
 	}
-	j.run(&p.own)
+	j.run(&p.own, true)
 	// Poll briefly before parking in Wait, as the workers do (spinFor):
 	// the helpers usually finish their last tile within microseconds of
 	// the caller. Wait then returns at once, and orders their writes.
@@ -390,9 +392,9 @@ func (p *pool[T]) work(s *scratch[T]) {
 			return
 		}
 		if p.j.loop != nil {
-			p.j.runLoop()
+			p.j.runLoop(false)
 		} else {
-			p.j.run(s)
+			p.j.run(s, false)
 		}
 		p.j.busy.Add(-1)
 		p.j.wg.Done()
@@ -408,19 +410,44 @@ func (j *job[T]) set(mk microKernel[T], tA, tB bool, m, n, k int, alpha T, a []T
 	j.flags = flags
 	j.direct = direct
 	j.tm, j.tn = tm, tn
-	j.tilesAcross, j.tiles = across, int64(tiles)
-	j.next.Store(0)
+	j.tilesAcross = across
+	j.span.Store(uint64(tiles) << 32)
+}
+
+// claim takes the next tile (or chunk) not yet claimed, and reports
+// false when none is left. The caller of a product takes them from the
+// front and the workers from the back, so each ends up with a contiguous
+// run: with two cores, one half of a matrix each. Consecutive products
+// and updates then split the same memory the same way, and each core
+// finds in its own cache what it wrote a moment before (a weight matrix
+// updated half by each core, then read by the next product's tiles
+// interleaved, had to move between the cores' caches).
+func (j *job[T]) claim(front bool) (int, bool) {
+	for {
+		v := j.span.Load()
+		lo, hi := v&0xffffffff, v>>32
+		if lo >= hi {
+			return 0, false
+		}
+		t, nv := lo, hi<<32|(lo+1)
+		if !front {
+			t, nv = hi-1, (hi-1)<<32|lo
+		}
+		if j.span.CompareAndSwap(v, nv) {
+			return int(t), true
+		}
+	}
 }
 
 // run claims tiles until none are left.
-func (j *job[T]) run(s *scratch[T]) {
+func (j *job[T]) run(s *scratch[T], front bool) {
 	for {
-		t := j.next.Add(1) - 1
-		if t >= j.tiles {
+		t, ok := j.claim(front)
+		if !ok {
 			return
 		}
-		i0 := int(t) / j.tilesAcross * j.tm
-		j0 := int(t) % j.tilesAcross * j.tn
+		i0 := t / j.tilesAcross * j.tm
+		j0 := t % j.tilesAcross * j.tn
 		j.tile(s, i0, min(j.tm, j.m-i0), j0, min(j.tn, j.n-j0))
 	}
 }

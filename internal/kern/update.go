@@ -58,8 +58,7 @@ func rangeOn[T Float](p *pool[T], n int, r Ranger) int {
 	j := &p.j
 	chunks := (n + updateChunk - 1) / updateChunk
 	j.loop, j.loopN = r, n
-	j.tiles = int64(chunks)
-	j.next.Store(0)
+	j.span.Store(uint64(chunks) << 32)
 	j.bad.Store(int64(n))
 	helpers := min(procs-1, chunks-1)
 	for p.started < helpers {
@@ -70,7 +69,7 @@ func rangeOn[T Float](p *pool[T], n int, r Ranger) int {
 	for range helpers {
 		p.wake <- nil
 	}
-	j.runLoop()
+	j.runLoop(true)
 	for t0 := time.Now(); j.busy.Load() > 0 && time.Since(t0) < spinFor; {
 		runtime.Gosched()
 	}
@@ -84,13 +83,13 @@ func rangeOn[T Float](p *pool[T], n int, r Ranger) int {
 
 // runLoop claims chunks until none are left, lowering j.bad to the
 // smallest bad index found.
-func (j *job[T]) runLoop() {
+func (j *job[T]) runLoop(front bool) {
 	for {
-		t := j.next.Add(1) - 1
-		if t >= j.tiles {
+		t, ok := j.claim(front)
+		if !ok {
 			return
 		}
-		lo := int(t) * updateChunk
+		lo := t * updateChunk
 		hi := min(lo+updateChunk, j.loopN)
 		if b := j.loop.Range(lo, hi); b >= 0 {
 			for b64 := int64(b); ; {
