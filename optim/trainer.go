@@ -411,9 +411,9 @@ func (t *Trainer[T]) update(lr float64) error {
 }
 
 // noiseBlock is the number of elements that share one noise seed in a
-// step (noise.go). It divides kern.RangeChunk, so the blocks are the same however
-// ParallelRange splits a parameter, and the bits do not depend on the
-// number of threads.
+// step (noise.go). It divides kern.RangeChunk, so the blocks are the same
+// however ParallelRange splits a parameter, and the bits do not depend on
+// the number of threads.
 const noiseBlock = kern.RangeChunk / 8
 
 // guardedUpdate is one parameter's pass of Trainer.update, for
