@@ -82,13 +82,23 @@ func newZigTables(r, v float64) *zigTables {
 
 // normalAt is element j of the block with seed s.
 func normalAt(s uint64, j int) float64 {
-	u := splitMix(s + uint64(j)*golden)
-	i := u & (zigStrips - 1)
-	J := int64(int32(u >> 32))
-	if abs64(J) < zig.k[i] {
-		return float64(J) * zig.w[i]
+	u := wordAt(s, j)
+	if x, _, _, ok := zigFast(u); ok {
+		return x
 	}
 	return zigSlow(u)
+}
+
+// wordAt is the 64-bit word of element j of the block with seed s.
+func wordAt(s uint64, j int) uint64 { return splitMix(s + uint64(j)*golden) }
+
+// zigFast is the fast path for the word u: strip i, J the high 32 bits
+// of u as a signed integer, x = J·w_i, and whether x is the number
+// (|J| < k_i).
+func zigFast(u uint64) (x float64, i uint64, J int64, ok bool) {
+	i = u & (zigStrips - 1)
+	J = int64(int32(u >> 32))
+	return float64(J) * zig.w[i], i, J, abs64(J) < zig.k[i]
 }
 
 // zigSlow settles a draw u that the fast path did not take: the tail
@@ -104,10 +114,8 @@ func zigSlow(u uint64) float64 {
 	// unit is uniform on (0, 1), never 0, so its logarithm is finite.
 	unit := func() float64 { return (float64(next()>>11) + 0.5) / (1 << 53) }
 	for {
-		i := u & (zigStrips - 1)
-		J := int64(int32(u >> 32))
-		x := float64(J) * zig.w[i]
-		if abs64(J) < zig.k[i] {
+		x, i, J, ok := zigFast(u)
+		if ok {
 			return x
 		}
 		if i == 0 {
@@ -148,7 +156,7 @@ func fillNormals(dst []float64, s uint64) {
 	for b, m := range miss[:done/8] {
 		for ; m != 0; m &= m - 1 {
 			j := b*8 + bits.TrailingZeros8(m)
-			dst[j] = zigSlow(splitMix(s + uint64(j)*golden))
+			dst[j] = zigSlow(wordAt(s, j))
 		}
 	}
 	for j := done; j < len(dst); j++ {
