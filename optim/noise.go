@@ -173,12 +173,7 @@ func addNoise[T net.Float](val []T, xi []float64, sigma float64) int {
 	done, nonFinite := kern.AddNoise(val, xi, sigma)
 	bad := -1
 	if nonFinite {
-		for j, v := range val[:done] {
-			if notFinite(v) {
-				bad = j
-				break
-			}
-		}
+		bad = firstNotFinite(val[:done])
 	}
 	xi = xi[:len(val)]
 	for j := done; j < len(val); j++ {

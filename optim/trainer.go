@@ -581,10 +581,8 @@ func stepExact[T net.Float](val, grad, vel []T, lr, d, mu float64, nesterov bool
 	}
 	bad := stepScalar(val[done:], grad[done:len(val)], rest, lr, d, mu, nesterov)
 	if nonFinite {
-		for j, v := range val[:done] {
-			if notFinite(v) {
-				return j
-			}
+		if j := firstNotFinite(val[:done]); j >= 0 {
+			return j
 		}
 	}
 	if bad >= 0 {
@@ -743,3 +741,14 @@ func (t *Trainer[T]) Steps() (steps, epochs int) { return t.step, t.epoch }
 // far cheaper per element than math.IsNaN and math.IsInf together on
 // this hot path.
 func notFinite[T net.Float](x T) bool { return x-x != 0 }
+
+// firstNotFinite is the index of the first value of v that is not finite,
+// or −1: where a vector loop reported one, the index to name.
+func firstNotFinite[T net.Float](v []T) int {
+	for j, x := range v {
+		if notFinite(x) {
+			return j
+		}
+	}
+	return -1
+}
