@@ -444,14 +444,14 @@ func (g *guardedUpdate[T]) keep(lo, hi int) {
 
 // blame lowers gradBad to the first non-finite gradient in [from, hi).
 func (g *guardedUpdate[T]) blame(from, hi int) {
-	for j := from; j < hi; j++ {
-		if notFinite(g.grad[j]) {
-			for b := int64(j); ; {
-				cur := g.gradBad.Load()
-				if b >= cur || g.gradBad.CompareAndSwap(cur, b) {
-					return
-				}
-			}
+	j := firstNotFinite(g.grad[from:hi])
+	if j < 0 {
+		return
+	}
+	for b := int64(from + j); ; {
+		cur := g.gradBad.Load()
+		if b >= cur || g.gradBad.CompareAndSwap(cur, b) {
+			return
 		}
 	}
 }
