@@ -5,6 +5,7 @@ import (
 	"math"
 	"testing"
 
+	"github.com/rhomb/rhomb/data"
 	"github.com/rhomb/rhomb/loss"
 	"github.com/rhomb/rhomb/net"
 	"github.com/rhomb/rhomb/normalize"
@@ -75,23 +76,9 @@ func TestHookValuesAgainstFormulas(t *testing.T) {
 		}
 		return optim.ErrStop
 	}}
-	tr, err := optim.NewTrainer[float64](w, loss.Square[float64]{}, set, optim.Settings{LearningRate: 0.01, WeightDecay: lambda, Hooks: hooks})
-	if err != nil {
-		t.Fatal(err)
-	}
-	if res, err := tr.Run(context.Background()); err != nil || res.Status != optim.Stopped {
-		t.Fatalf("Run: %v, %v", res, err)
-	}
+	runToFirstHook(t, w, set, lambda, hooks)
 
-	// Sums of 150 float64 terms computed in two different orders agree to
-	// about 150ε relative; 1e-11 allows for cancellation in Σ(y − ρf)f.
-	const tol = 1e-11
-	close := func(what string, got, want, scale float64) {
-		t.Helper()
-		if math.Abs(got-want) > tol*scale {
-			t.Errorf("%s = %.15g, want %.15g", what, got, want)
-		}
-	}
+	close := hookClose(t)
 	close("ρ̇", got.RhoDot, wantRhoDot, math.Abs(wantRhoDot)+lambda*rho)
 	close("ρ̇ from autodiff", got.RhoDot, -(gradRho + 2*lambda*rho), math.Abs(wantRhoDot)+lambda*rho)
 	close("ρ*", got.RhoStar, wantRhoStar, wantRhoStar)
@@ -101,7 +88,7 @@ func TestHookValuesAgainstFormulas(t *testing.T) {
 		close("‖V̇‖ of "+n.Dense()[k].Name(), got.DirSpeed[k], net.FrobeniusNorm(vdot[k]), net.FrobeniusNorm(vdot[k]))
 		// The wrapper's direction gradient is −V̇ entry by entry.
 		for j := range vdot[k] {
-			if d := math.Abs(gradV[k][j] + vdot[k][j]); d > tol*net.FrobeniusNorm(vdot[k]) {
+			if d := math.Abs(gradV[k][j] + vdot[k][j]); d > hookTol*net.FrobeniusNorm(vdot[k]) {
 				t.Errorf("layer %d entry %d: projected gradient %v, −V̇ %v", k, j, gradV[k][j], -vdot[k][j])
 				break
 			}
@@ -259,22 +246,8 @@ func TestHookValuesPerLayer(t *testing.T) {
 		}
 		return optim.ErrStop
 	}}
-	tr, err := optim.NewTrainer[float64](w, loss.Square[float64]{}, set, optim.Settings{LearningRate: 0.01, WeightDecay: lambda, Hooks: hooks})
-	if err != nil {
-		t.Fatal(err)
-	}
-	if res, err := tr.Run(context.Background()); err != nil || res.Status != optim.Stopped {
-		t.Fatalf("Run: %v, %v", res, err)
-	}
-	// As in TestHookValuesAgainstFormulas: sums of 150 terms in two
-	// orders, with room for cancellation in Σ(y − ρf)f.
-	const tol = 1e-11
-	close := func(what string, got, want, scale float64) {
-		t.Helper()
-		if math.Abs(got-want) > tol*scale {
-			t.Errorf("%s = %.15g, want %.15g", what, got, want)
-		}
-	}
+	runToFirstHook(t, w, set, lambda, hooks)
+	close := hookClose(t)
 	close("ρ = ∏ρ_k", got.Rho, rho, rho)
 	if len(got.Nu) != L || len(got.DirSpeed) != L {
 		t.Fatalf("%d multipliers and %d speeds for %d layers", len(got.Nu), len(got.DirSpeed), L)
@@ -283,10 +256,39 @@ func TestHookValuesPerLayer(t *testing.T) {
 		close("ν_"+n.Dense()[k].Name(), got.Nu[k], wantNu, math.Abs(wantNu))
 		close("‖V̇‖ of "+n.Dense()[k].Name(), got.DirSpeed[k], net.FrobeniusNorm(vdot[k]), net.FrobeniusNorm(vdot[k]))
 		for j := range vdot[k] {
-			if d := math.Abs(gradV[k][j] + vdot[k][j]); d > tol*net.FrobeniusNorm(vdot[k]) {
+			if d := math.Abs(gradV[k][j] + vdot[k][j]); d > hookTol*net.FrobeniusNorm(vdot[k]) {
 				t.Errorf("layer %d entry %d: projected gradient %v, −V̇ %v", k, j, gradV[k][j], -vdot[k][j])
 				break
 			}
+		}
+	}
+}
+
+// runToFirstHook trains w on set with learning rate 0.01 and decay lambda
+// until hooks stops the run (at the first step).
+func runToFirstHook(t *testing.T, w optim.Model[float64], set *data.Set[float64], lambda float64, hooks *optim.Hooks) {
+	t.Helper()
+	tr, err := optim.NewTrainer[float64](w, loss.Square[float64]{}, set, optim.Settings{LearningRate: 0.01, WeightDecay: lambda, Hooks: hooks})
+	if err != nil {
+		t.Fatal(err)
+	}
+	if res, err := tr.Run(context.Background()); err != nil || res.Status != optim.Stopped {
+		t.Fatalf("Run: %v, %v", res, err)
+	}
+}
+
+// hookTol bounds the hook's values against the ones computed in the
+// tests: sums of 150 float64 terms computed in two different orders agree
+// to about 150ε relative; 1e-11 allows for cancellation in Σ(y − ρf)f.
+const hookTol = 1e-11
+
+// hookClose compares a hook's value with the one computed in the test,
+// to hookTol relative to scale.
+func hookClose(t *testing.T) func(what string, got, want, scale float64) {
+	return func(what string, got, want, scale float64) {
+		t.Helper()
+		if math.Abs(got-want) > hookTol*scale {
+			t.Errorf("%s = %.15g, want %.15g", what, got, want)
 		}
 	}
 }
