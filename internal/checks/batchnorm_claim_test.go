@@ -8,8 +8,6 @@ import (
 	"strings"
 	"testing"
 
-	"github.com/rhomb/rhomb/data"
-	"github.com/rhomb/rhomb/data/prep"
 	"github.com/rhomb/rhomb/internal/suite"
 	"github.com/rhomb/rhomb/optim/recipe"
 )
@@ -59,20 +57,7 @@ func TestClaimInitialScale(t *testing.T) {
 	if d == nil {
 		t.Fatalf("RHOMB_CLAIM_BN=%s: no such dataset in internal/suite", which)
 	}
-	tab := suite.Load(t, *d)
-	trainRows, testRows, err := suite.Split(tab, suiteSeed)
-	if err != nil {
-		t.Fatal(err)
-	}
-	fit, test := tab.Subset(trainRows), tab.Subset(testRows)
-	p, err := recipe.Prepare[float32](fit, recipe.Split{Holdout: 0.2, Seed: suiteSeed, Prep: prep.Options{Impute: true}})
-	if err != nil {
-		t.Fatal(err)
-	}
-	ts, err := data.Encode[float32](test, allRows(test.Rows), p.Pipeline, p.Classes)
-	if err != nil {
-		t.Fatal(err)
-	}
+	p, ts := suitePrepared(t, *d)
 	settings := []struct {
 		name string
 		plan recipe.Plan

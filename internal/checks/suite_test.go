@@ -52,14 +52,8 @@ type suiteRow struct {
 // runSuiteDataset trains rhomb and the references on one dataset.
 func runSuiteDataset(t *testing.T, d suite.Dataset, plan recipe.Plan) suiteRow {
 	t.Helper()
-	tab := suite.Load(t, d)
-	trainRows, testRows, err := suite.Split(tab, suiteSeed)
-	if err != nil {
-		t.Fatal(err)
-	}
-	fit, test := tab.Subset(trainRows), tab.Subset(testRows)
-	split := recipe.Split{Holdout: 0.2, Seed: suiteSeed, Prep: prep.Options{Impute: true}}
-	row := suiteRow{name: d.Name, source: d.Source, test: len(testRows)}
+	fit, test, split := suiteSplit(t, d)
+	row := suiteRow{name: d.Name, source: d.Source, test: test.Rows}
 
 	start := time.Now()
 	p, err := recipe.Prepare[float32](fit, split)
@@ -268,20 +262,7 @@ func TestSuiteSweep(t *testing.T) {
 		if only := os.Getenv("RHOMB_SUITE_ONLY"); only != "" && !strings.Contains(","+only+",", ","+d.Name+",") {
 			continue
 		}
-		tab := suite.Load(t, d)
-		trainRows, testRows, err := suite.Split(tab, suiteSeed)
-		if err != nil {
-			t.Fatal(err)
-		}
-		fit, test := tab.Subset(trainRows), tab.Subset(testRows)
-		p, err := recipe.Prepare[float32](fit, recipe.Split{Holdout: 0.2, Seed: suiteSeed, Prep: prep.Options{Impute: true}})
-		if err != nil {
-			t.Fatal(err)
-		}
-		ts, err := data.Encode[float32](test, allRows(test.Rows), p.Pipeline, p.Classes)
-		if err != nil {
-			t.Fatal(err)
-		}
+		p, ts := suitePrepared(t, d)
 		score := func(plan recipe.Plan) (val, tst float64) {
 			plan.Seed = suiteSeed
 			f, err := recipe.Fit(context.Background(), p.Train, p.Val, plan, false, nil)
@@ -343,4 +324,33 @@ func thresholded(f *recipe.Fitted[float32], ts *data.Set[float32], t float64) (a
 		c.Add(ts.Class(r), k)
 	})
 	return c.Accuracy(), c.BalancedAccuracy()
+}
+
+// suiteSplit loads d and splits it as the suite does: the rows to fit on
+// and the test rows (suite.Split, suiteSeed), and the recipe's split of
+// the fit rows into training and validation.
+func suiteSplit(t *testing.T, d suite.Dataset) (fit, test *data.Table, split recipe.Split) {
+	t.Helper()
+	tab := suite.Load(t, d)
+	trainRows, testRows, err := suite.Split(tab, suiteSeed)
+	if err != nil {
+		t.Fatal(err)
+	}
+	return tab.Subset(trainRows), tab.Subset(testRows), recipe.Split{Holdout: 0.2, Seed: suiteSeed, Prep: prep.Options{Impute: true}}
+}
+
+// suitePrepared is suiteSplit with the fit rows prepared in float32 and
+// the test rows encoded by the same pipeline.
+func suitePrepared(t *testing.T, d suite.Dataset) (*recipe.Prepared[float32], *data.Set[float32]) {
+	t.Helper()
+	fit, test, split := suiteSplit(t, d)
+	p, err := recipe.Prepare[float32](fit, split)
+	if err != nil {
+		t.Fatal(err)
+	}
+	ts, err := data.Encode[float32](test, allRows(test.Rows), p.Pipeline, p.Classes)
+	if err != nil {
+		t.Fatal(err)
+	}
+	return p, ts
 }
