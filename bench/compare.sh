@@ -3,7 +3,8 @@
 # machine, interleaved: each round runs the Go benchmarks and then the numpy
 # script, so that a change in what else the machine is doing hits both.
 # Prints every round's raw lines; compare figures from the same round.
-# Compare numpy's step with BenchmarkStep: both time steps back to back.
+# Compare numpy's step with BenchmarkStep: both time steps back to back,
+# and both report a mean (numpy_step.py also prints its best round).
 # BenchmarkRatio's rhomb figure is a cold one (see bench/doc.go).
 #
 #   sh bench/compare.sh [rounds]    (from the repository root; default 3)
@@ -22,7 +23,9 @@ go test -c -o "$bin" ./bench/
 i=1
 while [ "$i" -le "$rounds" ]; do
 	echo "== round $i"
-	(cd bench && "$bin" -test.run '^$' -test.bench '^(BenchmarkPeak|BenchmarkStep|BenchmarkRatio|BenchmarkGemmSquare)$' -test.benchtime 20x -test.cpu 1,2 | grep -E '^Benchmark')
+	(cd bench && "$bin" -test.run '^$' -test.bench '^(BenchmarkPeak|BenchmarkRatio|BenchmarkGemmSquare)$' -test.benchtime 20x -test.cpu 1,2 | grep -E '^Benchmark')
+	# 250 steps, as many as numpy_step.py times (five rounds of 50).
+	(cd bench && "$bin" -test.run '^$' -test.bench '^BenchmarkStep$' -test.benchtime 250x -test.cpu 1,2 | grep -E '^Benchmark')
 	env -u OPENBLAS_CORETYPE -u OPENBLAS_L2_SIZE "${PYTHON:-python3}" bench/numpy_step.py
 	if [ -n "$RHOMB_OPENDATA" ]; then
 		(cd bench && "$bin" -test.run '^$' -test.bench '^BenchmarkFashionEpoch$' -test.benchtime 1x | grep -E '^Benchmark')

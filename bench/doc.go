@@ -62,6 +62,10 @@
 // efficiency, while wall-clock figures show the speed-up from a second
 // core. numpy_step.py is the same step in plain numpy, the optimized-BLAS
 // reference, and compare.sh runs it interleaved with the Go benchmarks.
+// Its main figures are means over its rounds, as go test -bench reports
+// the Go benchmarks' (it also prints its best round: compare a best with
+// a best only — on the shared host of 2026-12-03 the best of five rounds
+// ran 1–30% above their mean, 4% in the median).
 //
 // Without -bench, go test ./bench/ runs only that check and is quick.
 package bench

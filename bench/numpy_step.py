@@ -12,7 +12,10 @@ Run with OpenBLAS's processor detection left alone:
     env -u OPENBLAS_CORETYPE -u OPENBLAS_L2_SIZE python3 bench/numpy_step.py
 
 It prints samples/s and GFLOP/s (2mnk per product, 3 forward and 5
-backward) for float32 and float64. Read the figures as ratios against the Go
+backward) for float32 and float64: the mean over five rounds, as the Go
+benchmarks report theirs, then the best round. (Until 2026-12-03 the
+script printed only the best round, against the Go benchmarks' mean: a
+bias in numpy's favour on a shared host.) Read the figures as ratios against the Go
 benchmarks run just before or after, on the same machine.
 """
 import sys
@@ -33,16 +36,20 @@ def flops(widths, batch):
     return f
 
 
-def best_rate(fn, reps, rounds=5):
-    """The best of several rounds of reps calls, in calls per second."""
+def rates(fn, reps, rounds=5):
+    """Calls per second over several rounds of reps calls, after one call
+    to warm up: the mean (all calls over all their time, the figure
+    `go test -bench` reports for the Go benchmarks) and the best round."""
     fn()
-    best = 0.0
+    total, best = 0.0, 0.0
     for _ in range(rounds):
         t0 = time.perf_counter()
         for _ in range(reps):
             fn()
-        best = max(best, reps / (time.perf_counter() - t0))
-    return best
+        dt = time.perf_counter() - t0
+        total += dt
+        best = max(best, reps / dt)
+    return rounds * reps / total, best
 
 
 def step_bench(dtype, widths, batch, reps):
@@ -73,16 +80,16 @@ def step_bench(dtype, widths, batch, reps):
         w[1] -= lr * dw2
         w[2] -= lr * dw3
 
-    rate = best_rate(step, reps)
-    return rate * batch, rate * flops(widths, batch) / 1e9
+    mean, best = rates(step, reps)
+    return mean * batch, mean * flops(widths, batch) / 1e9, best * batch
 
 
 def matmul_bench(dtype, n, reps):
     rng = np.random.default_rng(2)
     a = rng.random((n, n)).astype(dtype)
     b = rng.random((n, n)).astype(dtype)
-    rate = best_rate(lambda: a @ b.T, reps)
-    return rate * 2 * n**3 / 1e9
+    mean, best = rates(lambda: a @ b.T, reps)
+    return mean * 2 * n**3 / 1e9, best * 2 * n**3 / 1e9
 
 
 def main():
@@ -90,12 +97,12 @@ def main():
     np.show_config() if "-v" in sys.argv else None
     for name, dtype in (("float=32", np.float32), ("float=64", np.float64)):
         for widths, batch, reps in (((784, 512, 512, 10), 128, 50), ((16, 32, 32, 4), 32, 2000)):
-            sps, gf = step_bench(dtype, widths, batch, reps)
+            sps, gf, best = step_bench(dtype, widths, batch, reps)
             net = "-".join(map(str, widths))
-            print(f"numpy step net={net}/batch={batch}/{name}: {sps:.0f} samples/s, {gf:.1f} GFLOP/s")
+            print(f"numpy step net={net}/batch={batch}/{name}: {sps:.0f} samples/s, {gf:.1f} GFLOP/s (best round {best:.0f} samples/s)")
         for n in (64, 128, 256, 512, 1024):
-            gf = matmul_bench(dtype, n, max(3, int(2e9 / (2 * n**3))))
-            print(f"numpy matmul size={n}/{name}: {gf:.1f} GFLOP/s")
+            gf, best = matmul_bench(dtype, n, max(3, int(2e9 / (2 * n**3))))
+            print(f"numpy matmul size={n}/{name}: {gf:.1f} GFLOP/s (best round {best:.1f})")
 
 
 if __name__ == "__main__":
