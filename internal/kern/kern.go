@@ -356,15 +356,24 @@ func gemm[T Float](p *pool[T], mk microKernel[T], tA, tB bool, m, n, k int, alph
 		}
 	}
 	j.run(&p.own, true)
-	// Poll briefly before parking in Wait, as the workers do (spinFor):
-	// the helpers usually finish their last tile within microseconds of
-	// the caller. Wait then returns at once, and orders their writes.
-	for t0 := time.Now(); j.busy.Load() > 0 && time.Since(t0) < spinFor; {
-		runtime.Gosched()
-	}
-	j.wg.Wait()
+	j.await()
 	// Drop references so the pool does not keep the caller's buffers alive.
 	j.a, j.b, j.c = nil, nil, nil
+}
+
+// await waits for the helpers of j. It polls briefly before parking in
+// Wait, as the workers do (spinFor): the helpers usually finish their
+// last tile within microseconds of the caller. Wait then returns at once,
+// and orders their writes. With no helper left running it reads no
+// clock: a small product, which has none, costs a few microseconds, and
+// a clock read is a visible part of that.
+func (j *job[T]) await() {
+	if j.busy.Load() > 0 {
+		for t0 := time.Now(); j.busy.Load() > 0 && time.Since(t0) < spinFor; {
+			runtime.Gosched()
+		}
+	}
+	j.wg.Wait()
 }
 
 // start starts one worker. (A method, not a go statement in gemm: Go 1.26

@@ -1,9 +1,6 @@
 package kern
 
-import (
-	"runtime"
-	"time"
-)
+import "runtime"
 
 const (
 	// updateParallel is the length from which ParallelRange spreads over the
@@ -70,10 +67,7 @@ func rangeOn[T Float](p *pool[T], n int, r Ranger) int {
 		p.wake <- nil
 	}
 	j.runLoop(true)
-	for t0 := time.Now(); j.busy.Load() > 0 && time.Since(t0) < spinFor; {
-		runtime.Gosched()
-	}
-	j.wg.Wait()
+	j.await()
 	j.loop = nil
 	if b := int(j.bad.Load()); b < n {
 		return b
