@@ -87,6 +87,88 @@ func Dot[T Float](x, w []T) T {
 	return T(dot64(any(x).([]float64), any(w).([]float64)))
 }
 
+// DotRows sets y[j] = Dot(x, w[j·n : (j+1)·n]) for every j < len(y), n =
+// len(x): a dense layer's outputs for one input row, w holding the
+// layer's weights row by row. It computes four outputs at a time, each
+// by exactly Dot's rule (so with Dot's bits): the four sums do not depend
+// on one another, and interleaving them keeps the processor's
+// multiply-add units busy where a single sum waits for each step's
+// result before the next.
+func DotRows[T Float](x, w, y []T) {
+	n := len(x)
+	if len(w) < len(y)*n {
+		panic(fmt.Sprintf("arith: DotRows: %d weights for %d outputs of %d inputs", len(w), len(y), n))
+	}
+	var c T
+	if _, ok := any(c).(float32); ok {
+		dotRows32(any(x).([]float32), any(w).([]float32), any(y).([]float32))
+		return
+	}
+	dotRows64(any(x).([]float64), any(w).([]float64), any(y).([]float64))
+}
+
+func dotRows64(x, w, y []float64) {
+	n := len(x)
+	j := 0
+	for ; j+4 <= len(y); j += 4 {
+		w0, w1, w2, w3 := w[j*n:(j+1)*n], w[(j+1)*n:(j+2)*n], w[(j+2)*n:(j+3)*n], w[(j+3)*n:(j+4)*n]
+		var c0, c1, c2, c3 float64
+		for b := 0; b < n; b += KBlock {
+			e := min(b+KBlock, n)
+			xb := x[b:e]
+			v0, v1, v2, v3 := w0[b:e], w1[b:e], w2[b:e], w3[b:e]
+			v0, v1, v2, v3 = v0[:len(xb)], v1[:len(xb)], v2[:len(xb)], v3[:len(xb)]
+			var a0, a1, a2, a3 float64
+			for l, xl := range xb {
+				a0 = math.FMA(xl, v0[l], a0)
+				a1 = math.FMA(xl, v1[l], a1)
+				a2 = math.FMA(xl, v2[l], a2)
+				a3 = math.FMA(xl, v3[l], a3)
+			}
+			if b == 0 {
+				c0, c1, c2, c3 = a0, a1, a2, a3
+			} else {
+				c0, c1, c2, c3 = c0+a0, c1+a1, c2+a2, c3+a3
+			}
+		}
+		y[j], y[j+1], y[j+2], y[j+3] = c0, c1, c2, c3
+	}
+	for ; j < len(y); j++ {
+		y[j] = dot64(x, w[j*n:(j+1)*n])
+	}
+}
+
+func dotRows32(x, w, y []float32) {
+	n := len(x)
+	j := 0
+	for ; j+4 <= len(y); j += 4 {
+		w0, w1, w2, w3 := w[j*n:(j+1)*n], w[(j+1)*n:(j+2)*n], w[(j+2)*n:(j+3)*n], w[(j+3)*n:(j+4)*n]
+		var c0, c1, c2, c3 float32
+		for b := 0; b < n; b += KBlock {
+			e := min(b+KBlock, n)
+			xb := x[b:e]
+			v0, v1, v2, v3 := w0[b:e], w1[b:e], w2[b:e], w3[b:e]
+			v0, v1, v2, v3 = v0[:len(xb)], v1[:len(xb)], v2[:len(xb)], v3[:len(xb)]
+			var a0, a1, a2, a3 float32
+			for l, xl := range xb {
+				a0 = FMA32(xl, v0[l], a0)
+				a1 = FMA32(xl, v1[l], a1)
+				a2 = FMA32(xl, v2[l], a2)
+				a3 = FMA32(xl, v3[l], a3)
+			}
+			if b == 0 {
+				c0, c1, c2, c3 = a0, a1, a2, a3
+			} else {
+				c0, c1, c2, c3 = c0+a0, c1+a1, c2+a2, c3+a3
+			}
+		}
+		y[j], y[j+1], y[j+2], y[j+3] = c0, c1, c2, c3
+	}
+	for ; j < len(y); j++ {
+		y[j] = dot32(x, w[j*n:(j+1)*n])
+	}
+}
+
 func dot64(x, w []float64) float64 {
 	var c float64
 	for b := 0; b < len(x); b += KBlock {

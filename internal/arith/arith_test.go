@@ -85,12 +85,53 @@ func dotVsGemm[T arith.Float](t *testing.T, in int) {
 	y := make([]T, rows*out)
 	// y = x·Wᵀ, as a dense layer computes its outputs (net/dense.go).
 	kern.Gemm(false, true, rows, out, in, 1, x, in, w, in, 0, y, out)
+	rowOut := make([]T, out)
 	for r := range rows {
+		arith.DotRows(x[r*in:(r+1)*in], w, rowOut)
 		for j := range out {
 			got := arith.Dot(x[r*in:(r+1)*in], w[j*in:(j+1)*in])
 			if float64(got) != float64(y[r*out+j]) || math.Signbit(float64(got)) != math.Signbit(float64(y[r*out+j])) {
 				t.Fatalf("%T row %d output %d: Dot %v, kern.Gemm %v", got, r, j, got, y[r*out+j])
 			}
+			if g := rowOut[j]; float64(g) != float64(got) || math.Signbit(float64(g)) != math.Signbit(float64(got)) {
+				t.Fatalf("%T row %d output %d: DotRows %v, Dot %v", got, r, j, g, got)
+			}
+		}
+	}
+}
+
+// TestDotRowsIsDot: DotRows, which computes four outputs at a time, gives
+// Dot's bits for every count of outputs (whole groups of four and the
+// rest) and for widths around the block length, including zeros of
+// either sign and a width of zero.
+func TestDotRowsIsDot(t *testing.T) {
+	for _, in := range []int{0, 1, 5, 256, 257, 513} {
+		for out := range 10 {
+			dotRowsVsDot[float64](t, in, out)
+			dotRowsVsDot[float32](t, in, out)
+		}
+	}
+}
+
+func dotRowsVsDot[T arith.Float](t *testing.T, in, out int) {
+	t.Helper()
+	rng := rand.New(rand.NewPCG(uint64(in), uint64(out)))
+	x, w := make([]T, in), make([]T, out*in)
+	for i := range x {
+		x[i] = T(rng.NormFloat64())
+		if i%7 == 3 {
+			x[i] = T(math.Copysign(0, float64(x[i])))
+		}
+	}
+	for i := range w {
+		w[i] = T(rng.NormFloat64())
+	}
+	y := make([]T, out)
+	arith.DotRows(x, w, y)
+	for j := range out {
+		want := arith.Dot(x, w[j*in:(j+1)*in])
+		if float64(y[j]) != float64(want) || math.Signbit(float64(y[j])) != math.Signbit(float64(want)) {
+			t.Fatalf("%T in %d out %d output %d: DotRows %v, Dot %v", want, in, out, j, y[j], want)
 		}
 	}
 }

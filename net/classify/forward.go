@@ -9,7 +9,8 @@ import (
 // use (internal/arith), so the bits are the same by construction:
 //
 //   - A dense layer's output j is arith.Dot of the row and W's row j, the
-//     rounding rule of every matrix product in training.
+//     rounding rule of every matrix product in training (arith.DotRows
+//     computes four such outputs at a time, with the same bits).
 //   - Batch normalization is arith.BatchNormRow with the stored running
 //     mean and the factor arith.BatchNormFactor of the stored variance and
 //     scale: the training node's inference mode calls the same two.
@@ -72,10 +73,7 @@ func forward[T arith.Float](layers []layer, x, a, b []T) []T {
 		case kindDense:
 			y := a[:l.out]
 			in := cur[:l.in]
-			w := weights[T](l)
-			for j := range y {
-				y[j] = arith.Dot(in, w[j*l.in:(j+1)*l.in])
-			}
+			arith.DotRows(in, weights[T](l), y)
 			cur, a, b = y, b, a
 		case kindReLU:
 			y := a[:len(cur)]
