@@ -19,8 +19,10 @@
 //	    acc = 0; for l in the block, in order: acc = fma(x_l, w_l, acc)
 //	    c = acc for the first block, c = c + acc for every later block
 //
-// where fma rounds once in T (math.FMA for float64, FMA32 for float32) and
-// the addition rounds once in T. Dot is that rule; the assembly kernels of
+// where fma rounds once in T (math.FMA for float64, FMA32 for float32 —
+// or, on amd64 processors with FMA, the processor's own single-precision
+// multiply-add, which rounds the same way) and the addition rounds once
+// in T. Dot is that rule; the assembly kernels of
 // internal/kern are checked against it bit for bit.
 package arith
 
@@ -150,11 +152,17 @@ func dotRows32(x, w, y []float32) {
 			v0, v1, v2, v3 := w0[b:e], w1[b:e], w2[b:e], w3[b:e]
 			v0, v1, v2, v3 = v0[:len(xb)], v1[:len(xb)], v2[:len(xb)], v3[:len(xb)]
 			var a0, a1, a2, a3 float32
-			for l, xl := range xb {
-				a0 = FMA32(xl, v0[l], a0)
-				a1 = FMA32(xl, v1[l], a1)
-				a2 = FMA32(xl, v2[l], a2)
-				a3 = FMA32(xl, v3[l], a3)
+			if hasFMA && len(xb) > 0 {
+				var a [4]float32
+				fmaChain32x4(&xb[0], &v0[0], len(xb), n, &a)
+				a0, a1, a2, a3 = a[0], a[1], a[2], a[3]
+			} else {
+				for l, xl := range xb {
+					a0 = FMA32(xl, v0[l], a0)
+					a1 = FMA32(xl, v1[l], a1)
+					a2 = FMA32(xl, v2[l], a2)
+					a3 = FMA32(xl, v3[l], a3)
+				}
 			}
 			if b == 0 {
 				c0, c1, c2, c3 = a0, a1, a2, a3
@@ -191,8 +199,12 @@ func dot32(x, w []float32) float32 {
 	for b := 0; b < len(x); b += KBlock {
 		e := min(b+KBlock, len(x))
 		var acc float32
-		for l := b; l < e; l++ {
-			acc = FMA32(x[l], w[l], acc)
+		if hasFMA {
+			acc = fmaChain32(&x[b], &w[b], e-b, 0)
+		} else {
+			for l := b; l < e; l++ {
+				acc = FMA32(x[l], w[l], acc)
+			}
 		}
 		if b == 0 {
 			c = acc
