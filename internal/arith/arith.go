@@ -103,78 +103,63 @@ func DotRows[T Float](x, w, y []T) {
 	}
 	var c T
 	if _, ok := any(c).(float32); ok {
-		dotRows32(any(x).([]float32), any(w).([]float32), any(y).([]float32))
+		dotRows(any(x).([]float32), any(w).([]float32), any(y).([]float32), block4x32, dot32)
 		return
 	}
-	dotRows64(any(x).([]float64), any(w).([]float64), any(y).([]float64))
+	dotRows(any(x).([]float64), any(w).([]float64), any(y).([]float64), block4x64, dot64)
 }
 
-func dotRows64(x, w, y []float64) {
+// dotRows is DotRows with the element type's sums: block4 returns the
+// four sums of one block for the weight rows at w, w + stride, w +
+// 2·stride and w + 3·stride, and dot is Dot for the outputs left over.
+func dotRows[T Float](x, w, y []T, block4 func(x, w []T, stride int) [4]T, dot func(x, w []T) T) {
 	n := len(x)
 	j := 0
 	for ; j+4 <= len(y); j += 4 {
-		w0, w1, w2, w3 := w[j*n:(j+1)*n], w[(j+1)*n:(j+2)*n], w[(j+2)*n:(j+3)*n], w[(j+3)*n:(j+4)*n]
-		var c0, c1, c2, c3 float64
+		var c [4]T
 		for b := 0; b < n; b += KBlock {
-			e := min(b+KBlock, n)
-			xb := x[b:e]
-			v0, v1, v2, v3 := w0[b:e], w1[b:e], w2[b:e], w3[b:e]
-			v0, v1, v2, v3 = v0[:len(xb)], v1[:len(xb)], v2[:len(xb)], v3[:len(xb)]
-			var a0, a1, a2, a3 float64
-			for l, xl := range xb {
-				a0 = math.FMA(xl, v0[l], a0)
-				a1 = math.FMA(xl, v1[l], a1)
-				a2 = math.FMA(xl, v2[l], a2)
-				a3 = math.FMA(xl, v3[l], a3)
-			}
-			if b == 0 {
-				c0, c1, c2, c3 = a0, a1, a2, a3
-			} else {
-				c0, c1, c2, c3 = c0+a0, c1+a1, c2+a2, c3+a3
-			}
-		}
-		y[j], y[j+1], y[j+2], y[j+3] = c0, c1, c2, c3
-	}
-	for ; j < len(y); j++ {
-		y[j] = dot64(x, w[j*n:(j+1)*n])
-	}
-}
-
-func dotRows32(x, w, y []float32) {
-	n := len(x)
-	j := 0
-	for ; j+4 <= len(y); j += 4 {
-		w0, w1, w2, w3 := w[j*n:(j+1)*n], w[(j+1)*n:(j+2)*n], w[(j+2)*n:(j+3)*n], w[(j+3)*n:(j+4)*n]
-		var c0, c1, c2, c3 float32
-		for b := 0; b < n; b += KBlock {
-			e := min(b+KBlock, n)
-			xb := x[b:e]
-			v0, v1, v2, v3 := w0[b:e], w1[b:e], w2[b:e], w3[b:e]
-			v0, v1, v2, v3 = v0[:len(xb)], v1[:len(xb)], v2[:len(xb)], v3[:len(xb)]
-			var a0, a1, a2, a3 float32
-			if hasFMA && len(xb) > 0 {
-				var a [4]float32
-				fmaChain32x4(&xb[0], &v0[0], len(xb), n, &a)
-				a0, a1, a2, a3 = a[0], a[1], a[2], a[3]
-			} else {
-				for l, xl := range xb {
-					a0 = FMA32(xl, v0[l], a0)
-					a1 = FMA32(xl, v1[l], a1)
-					a2 = FMA32(xl, v2[l], a2)
-					a3 = FMA32(xl, v3[l], a3)
+			a := block4(x[b:min(b+KBlock, n)], w[j*n+b:], n)
+			for r := range c {
+				if b == 0 {
+					c[r] = a[r]
+				} else {
+					c[r] += a[r]
 				}
 			}
-			if b == 0 {
-				c0, c1, c2, c3 = a0, a1, a2, a3
-			} else {
-				c0, c1, c2, c3 = c0+a0, c1+a1, c2+a2, c3+a3
-			}
 		}
-		y[j], y[j+1], y[j+2], y[j+3] = c0, c1, c2, c3
+		copy(y[j:j+4], c[:])
 	}
 	for ; j < len(y); j++ {
-		y[j] = dot32(x, w[j*n:(j+1)*n])
+		y[j] = dot(x, w[j*n:(j+1)*n])
 	}
+}
+
+func block4x64(x, w []float64, stride int) [4]float64 {
+	v0, v1, v2, v3 := w[:len(x)], w[stride:stride+len(x)], w[2*stride:2*stride+len(x)], w[3*stride:3*stride+len(x)]
+	var a0, a1, a2, a3 float64
+	for l, xl := range x {
+		a0 = math.FMA(xl, v0[l], a0)
+		a1 = math.FMA(xl, v1[l], a1)
+		a2 = math.FMA(xl, v2[l], a2)
+		a3 = math.FMA(xl, v3[l], a3)
+	}
+	return [4]float64{a0, a1, a2, a3}
+}
+
+func block4x32(x, w []float32, stride int) (a [4]float32) {
+	v0, v1, v2, v3 := w[:len(x)], w[stride:stride+len(x)], w[2*stride:2*stride+len(x)], w[3*stride:3*stride+len(x)]
+	if hasFMA && len(x) > 0 {
+		fmaChain32x4(&x[0], &v0[0], len(x), stride, &a)
+		return a
+	}
+	var a0, a1, a2, a3 float32
+	for l, xl := range x {
+		a0 = FMA32(xl, v0[l], a0)
+		a1 = FMA32(xl, v1[l], a1)
+		a2 = FMA32(xl, v2[l], a2)
+		a3 = FMA32(xl, v3[l], a3)
+	}
+	return [4]float32{a0, a1, a2, a3}
 }
 
 func dot64(x, w []float64) float64 {
