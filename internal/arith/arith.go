@@ -119,15 +119,13 @@ func dotRows[T Float](x, w, y []T, block4 func(x, w []T, stride int) [4]T, dot f
 		var c [4]T
 		for b := 0; b < n; b += KBlock {
 			a := block4(x[b:min(b+KBlock, n)], w[j*n+b:], n)
-			for r := range c {
-				if b == 0 {
-					c[r] = a[r]
-				} else {
-					c[r] += a[r]
-				}
+			if b == 0 {
+				c = a
+			} else {
+				c[0], c[1], c[2], c[3] = c[0]+a[0], c[1]+a[1], c[2]+a[2], c[3]+a[3]
 			}
 		}
-		copy(y[j:j+4], c[:])
+		y[j], y[j+1], y[j+2], y[j+3] = c[0], c[1], c[2], c[3]
 	}
 	for ; j < len(y); j++ {
 		y[j] = dot(x, w[j*n:(j+1)*n])
