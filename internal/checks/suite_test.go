@@ -14,6 +14,7 @@ import (
 	"github.com/rhomb/rhomb/internal/logreg"
 	"github.com/rhomb/rhomb/internal/score"
 	"github.com/rhomb/rhomb/internal/suite"
+	"github.com/rhomb/rhomb/net"
 	"github.com/rhomb/rhomb/optim/recipe"
 )
 
@@ -56,16 +57,9 @@ func runSuiteDataset(t *testing.T, d suite.Dataset, plan recipe.Plan) suiteRow {
 	row := suiteRow{name: d.Name, source: d.Source, test: test.Rows}
 
 	start := time.Now()
-	p, err := recipe.Prepare[float32](fit, split)
-	if err != nil {
-		t.Fatal(err)
-	}
+	p, ts := prepareSuite[float32](t, fit, test, split)
 	plan.Seed = suiteSeed
 	f, err := recipe.Fit(context.Background(), p.Train, p.Val, plan, false, nil)
-	if err != nil {
-		t.Fatal(err)
-	}
-	ts, err := data.Encode[float32](test, allRows(test.Rows), p.Pipeline, p.Classes)
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -100,14 +94,7 @@ func runSuiteDataset(t *testing.T, d suite.Dataset, plan recipe.Plan) suiteRow {
 	// The reference sees the same rows, encoded by the same pipeline (the
 	// float64 twin of the one above: same split, same fit).
 	start = time.Now()
-	q, err := recipe.Prepare[float64](fit, split)
-	if err != nil {
-		t.Fatal(err)
-	}
-	ts64, err := data.Encode[float64](test, allRows(test.Rows), q.Pipeline, q.Classes)
-	if err != nil {
-		t.Fatal(err)
-	}
+	q, ts64 := prepareSuite[float64](t, fit, test, split)
 	classes := max(q.Train.Outputs, 2)
 	ref, _, err := logreg.Tune(q.Train.X, q.Train.Rows, q.Train.Labels(), q.Val.X, q.Val.Rows, q.Val.Labels(), q.Train.Features, classes, logreg.DefaultGrid)
 	if err != nil {
@@ -344,11 +331,18 @@ func suiteSplit(t *testing.T, d suite.Dataset) (fit, test *data.Table, split rec
 func suitePrepared(t *testing.T, d suite.Dataset) (*recipe.Prepared[float32], *data.Set[float32]) {
 	t.Helper()
 	fit, test, split := suiteSplit(t, d)
-	p, err := recipe.Prepare[float32](fit, split)
+	return prepareSuite[float32](t, fit, test, split)
+}
+
+// prepareSuite prepares the fit rows in T and encodes the test rows by
+// the same pipeline.
+func prepareSuite[T net.Float](t *testing.T, fit, test *data.Table, split recipe.Split) (*recipe.Prepared[T], *data.Set[T]) {
+	t.Helper()
+	p, err := recipe.Prepare[T](fit, split)
 	if err != nil {
 		t.Fatal(err)
 	}
-	ts, err := data.Encode[float32](test, allRows(test.Rows), p.Pipeline, p.Classes)
+	ts, err := data.Encode[T](test, allRows(test.Rows), p.Pipeline, p.Classes)
 	if err != nil {
 		t.Fatal(err)
 	}
